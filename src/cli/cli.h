@@ -1,0 +1,84 @@
+/* Shared declarations of the collshift command-line front end: the command table, exit codes,
+ * message helpers and the file-loading options every subcommand accepts. */
+#ifndef CS_CLI_H
+#define CS_CLI_H
+
+#include <getopt.h>
+#include <stdio.h>
+
+#include <collshift/error.h>
+#include <collshift/io.h>
+
+/* Exit codes (documented in `collshift --help`). */
+enum {
+    CLI_EXIT_OK = 0,        /* success */
+    CLI_EXIT_ANALYSIS = 1,  /* the analysis did not succeed (e.g. a fit did not converge) */
+    CLI_EXIT_USAGE = 2,     /* usage error: unknown command or option, bad option value */
+    CLI_EXIT_DATA = 3       /* input or data error: unreadable or malformed file, unusable data */
+};
+
+/* A subcommand: handler gets argc/argv with argv[0] = the command name. */
+typedef struct cli_command {
+    const char *name;
+    int (*handler)(int argc, char **argv);
+    const char *summary;
+    const char *usage;      /* full usage text printed by `collshift help NAME` and `NAME --help` */
+} cli_command;
+
+/* Handlers, one file each in src/cli/. */
+int cmd_info(int argc, char **argv);
+extern const char cmd_info_usage[];
+
+/* The command table (main.c). */
+const cli_command *cli_find_command(const char *name);
+
+/* Print "collshift: " + formatted message + newline to stderr. */
+void cli_errorf(const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 1, 2)))
+#endif
+    ;
+/* Print a library error as "collshift: 'FILE': line N: message"; returns the exit code it maps to. */
+int cli_report(const cs_error *err);
+/* Map a CS_* status to an exit code. */
+int cli_exit_code(int status);
+
+/* Loading options shared by every command that reads lab files. */
+#define CLI_LOAD_OPTIONS_HELP \
+    "File options (any command that reads files):\n" \
+    "  --x COL, --y COL, --sigma COL   spectrum columns: 1-based number or header name\n" \
+    "  --t COL, --i COL, --q COL       record columns: time, in-phase, quadrature\n" \
+    "  --x-unit UNIT                   axis unit: Hz kHz MHz GHz THz rad/s cm^-1 nm A\n" \
+    "  --t-unit UNIT                   time unit: s ms us ns ps\n" \
+    "  --air                           wavelengths were measured in standard air (Edlen 1966)\n" \
+    "  --y-density                     y is a spectral density per unit of the axis (Jacobian applied)\n" \
+    "  --kind spectrum|record          what the file holds (default: decided from the axis)\n" \
+    "  --format text|raw|npy|hdf5      file format (default: from magic bytes and extension)\n" \
+    "  --delimiter C                   text delimiter: , ; tab space (default: detected)\n" \
+    "  --raw TYPE                      raw binary: i8 i16 i32 f32 f64, or ci8 ci16 ci32 cf32 cf64 (I/Q)\n" \
+    "  --sample-rate FREQ              sample rate, e.g. 250MHz (raw, npy, or text without time)\n" \
+    "  --big-endian                    raw samples are big-endian\n" \
+    "  --offset-bytes N                skip N bytes at the start of a raw file\n" \
+    "  --scale X                       multiply raw samples by X (e.g. volts per count)\n" \
+    "  --records N                     a raw file holds N shots back to back\n" \
+    "  --t0 TIME                       time of the first sample (default 0)\n" \
+    "  --dataset PATH                  HDF5 dataset with the samples (or the spectrum values)\n" \
+    "  --x-dataset PATH                HDF5 dataset with a spectrum's frequency axis\n"
+
+/* First option code used by the shared load options (subcommands use codes below it). */
+#define CLI_LOAD_OPT_BASE 1000
+/* The shared long options; terminated by a zero entry. A command copies them into its own table
+ * with cli_merge_options. */
+extern const struct option cli_load_longopts[];
+/* Concatenate a command's options (own, terminated by a zero entry) with cli_load_longopts into
+ * out (capacity cap entries). Returns 0, or -1 when out is too small. */
+int cli_merge_options(const struct option *own, struct option *out, size_t cap);
+/* Handle a shared load option (code >= CLI_LOAD_OPT_BASE). Returns 0 on success, or prints a usage
+ * message and returns CLI_EXIT_USAGE. */
+int cli_load_option(int code, const char *arg, cs_load_options *o);
+
+/* Write text to PATH atomically (temporary file in the same folder, then rename), or to stdout
+ * when path is "-". Returns 0, or prints a message and returns CLI_EXIT_DATA. */
+int cli_write_text(const char *path, const char *text);
+
+#endif /* CS_CLI_H */

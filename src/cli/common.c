@@ -1,0 +1,223 @@
+/* Helpers shared by the subcommands: the file-loading options and atomic output files. */
+#include "cli.h"
+
+#include <errno.h>
+#include <limits.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+enum {
+    OPT_X = CLI_LOAD_OPT_BASE, OPT_Y, OPT_SIGMA, OPT_T, OPT_I, OPT_Q, OPT_X_UNIT, OPT_T_UNIT,
+    OPT_AIR, OPT_Y_DENSITY, OPT_KIND, OPT_FORMAT, OPT_DELIM, OPT_RAW, OPT_RATE, OPT_BIG,
+    OPT_OFFSET, OPT_SCALE, OPT_RECORDS, OPT_T0, OPT_DATASET, OPT_X_DATASET
+};
+
+const struct option cli_load_longopts[] = {
+    {"x", required_argument, NULL, OPT_X},
+    {"y", required_argument, NULL, OPT_Y},
+    {"sigma", required_argument, NULL, OPT_SIGMA},
+    {"t", required_argument, NULL, OPT_T},
+    {"i", required_argument, NULL, OPT_I},
+    {"q", required_argument, NULL, OPT_Q},
+    {"x-unit", required_argument, NULL, OPT_X_UNIT},
+    {"t-unit", required_argument, NULL, OPT_T_UNIT},
+    {"air", no_argument, NULL, OPT_AIR},
+    {"y-density", no_argument, NULL, OPT_Y_DENSITY},
+    {"kind", required_argument, NULL, OPT_KIND},
+    {"format", required_argument, NULL, OPT_FORMAT},
+    {"delimiter", required_argument, NULL, OPT_DELIM},
+    {"raw", required_argument, NULL, OPT_RAW},
+    {"sample-rate", required_argument, NULL, OPT_RATE},
+    {"big-endian", no_argument, NULL, OPT_BIG},
+    {"offset-bytes", required_argument, NULL, OPT_OFFSET},
+    {"scale", required_argument, NULL, OPT_SCALE},
+    {"records", required_argument, NULL, OPT_RECORDS},
+    {"t0", required_argument, NULL, OPT_T0},
+    {"dataset", required_argument, NULL, OPT_DATASET},
+    {"x-dataset", required_argument, NULL, OPT_X_DATASET},
+    {NULL, 0, NULL, 0},
+};
+
+int cli_merge_options(const struct option *own, struct option *out, size_t cap)
+{
+    size_t k = 0;
+    for (const struct option *p = own; p && p->name; p++) {
+        if (k + 1 >= cap)
+            return -1;
+        out[k++] = *p;
+    }
+    for (const struct option *p = cli_load_longopts; p->name; p++) {
+        if (k + 1 >= cap)
+            return -1;
+        out[k++] = *p;
+    }
+    memset(&out[k], 0, sizeof out[k]);
+    return 0;
+}
+
+static int bad_value(const char *opt, const char *arg, const char *why)
+{
+    cli_errorf("--%s '%s': %s", opt, arg, why);
+    return CLI_EXIT_USAGE;
+}
+
+static int parse_quantity_opt(const char *opt, const char *arg, cs_dim dim, double *out)
+{
+    cs_error err;
+    cs_error_clear(&err);
+    if (cs_quantity_parse(arg, dim, NULL, out, NULL, NULL, &err) != CS_OK)
+        return bad_value(opt, arg, err.msg);
+    return 0;
+}
+
+static int parse_count(const char *opt, const char *arg, long long lo, long long *out)
+{
+    char *end;
+    errno = 0;
+    long long v = strtoll(arg, &end, 10);
+    if (end == arg || *end || errno == ERANGE || v < lo)
+        return bad_value(opt, arg, "expected a whole number");
+    *out = v;
+    return 0;
+}
+
+int cli_load_option(int code, const char *arg, cs_load_options *o)
+{
+    long long n;
+    switch (code) {
+    case OPT_X: o->x_col = arg; return 0;
+    case OPT_Y: o->y_col = arg; return 0;
+    case OPT_SIGMA: o->sigma_col = arg; return 0;
+    case OPT_T: o->t_col = arg; return 0;
+    case OPT_I: o->i_col = arg; return 0;
+    case OPT_Q: o->q_col = arg; return 0;
+    case OPT_X_UNIT: {
+        const cs_unit *u = cs_unit_find(arg);
+        if (!u || !(u->dim == CS_DIM_FREQUENCY || u->dim == CS_DIM_WAVENUMBER || u->dim == CS_DIM_LENGTH))
+            return bad_value("x-unit", arg, "not a frequency, wavenumber or wavelength unit");
+        o->x_unit = arg;
+        return 0;
+    }
+    case OPT_T_UNIT: {
+        const cs_unit *u = cs_unit_find_dim(arg, CS_DIM_TIME);
+        if (!u || u->dim != CS_DIM_TIME)
+            return bad_value("t-unit", arg, "not a time unit (s ms us ns ps)");
+        o->t_unit = arg;
+        return 0;
+    }
+    case OPT_AIR: o->air = 1; return 0;
+    case OPT_Y_DENSITY: o->y_is_density = 1; return 0;
+    case OPT_KIND:
+        if (strcmp(arg, "spectrum") == 0)
+            o->kind = CS_KIND_SPECTRUM;
+        else if (strcmp(arg, "record") == 0)
+            o->kind = CS_KIND_RECORD;
+        else
+            return bad_value("kind", arg, "expected 'spectrum' or 'record'");
+        return 0;
+    case OPT_FORMAT:
+        if (strcmp(arg, "text") == 0)
+            o->format = CS_FORMAT_TEXT;
+        else if (strcmp(arg, "raw") == 0)
+            o->format = CS_FORMAT_RAW;
+        else if (strcmp(arg, "npy") == 0)
+            o->format = CS_FORMAT_NPY;
+        else if (strcmp(arg, "hdf5") == 0)
+            o->format = CS_FORMAT_HDF5;
+        else
+            return bad_value("format", arg, "expected text, raw, npy or hdf5");
+        return 0;
+    case OPT_DELIM:
+        if (strcmp(arg, "tab") == 0 || strcmp(arg, "\\t") == 0)
+            o->delimiter = '\t';
+        else if (strcmp(arg, "space") == 0 || strcmp(arg, "whitespace") == 0)
+            o->delimiter = ' ';
+        else if (strlen(arg) == 1 && strchr(",;\t ", arg[0]))
+            o->delimiter = arg[0];
+        else
+            return bad_value("delimiter", arg, "expected ',', ';', tab or space");
+        return 0;
+    case OPT_RAW:
+        o->raw_type = cs_raw_type_parse(arg);
+        if (o->raw_type == CS_RAW_NONE)
+            return bad_value("raw", arg, "expected i8 i16 i32 f32 f64 ci8 ci16 ci32 cf32 cf64");
+        o->format = CS_FORMAT_RAW;
+        return 0;
+    case OPT_RATE: {
+        int rc = parse_quantity_opt("sample-rate", arg, CS_DIM_FREQUENCY, &o->sample_rate_hz);
+        if (rc == 0 && !(o->sample_rate_hz > 0))
+            return bad_value("sample-rate", arg, "must be positive");
+        return rc;
+    }
+    case OPT_BIG: o->big_endian = 1; return 0;
+    case OPT_OFFSET:
+        if (parse_count("offset-bytes", arg, 0, &n))
+            return CLI_EXIT_USAGE;
+        o->offset_bytes = n;
+        return 0;
+    case OPT_SCALE: {
+        char *end;
+        errno = 0;
+        double v = strtod(arg, &end);
+        if (end == arg || *end || errno == ERANGE || !(v == v) || v == 0.0)
+            return bad_value("scale", arg, "expected a non-zero number");
+        o->scale = v;
+        return 0;
+    }
+    case OPT_RECORDS:
+        if (parse_count("records", arg, 1, &n))
+            return CLI_EXIT_USAGE;
+        o->records = (size_t)n;
+        return 0;
+    case OPT_T0: return parse_quantity_opt("t0", arg, CS_DIM_TIME, &o->t0_s);
+    case OPT_DATASET: o->dataset = arg; return 0;
+    case OPT_X_DATASET: o->x_dataset = arg; return 0;
+    default:
+        cli_errorf("internal: unknown option code %d", code);
+        return CLI_EXIT_USAGE;
+    }
+}
+
+int cli_write_text(const char *path, const char *text)
+{
+    size_t len = strlen(text);
+    if (strcmp(path, "-") == 0) {
+        if (fwrite(text, 1, len, stdout) != len) {
+            cli_errorf("error writing to standard output");
+            return CLI_EXIT_DATA;
+        }
+        return 0;
+    }
+    size_t plen = strlen(path);
+    char *tmp = malloc(plen + 16);
+    if (!tmp) {
+        cli_errorf("out of memory");
+        return CLI_EXIT_DATA;
+    }
+    memcpy(tmp, path, plen);
+    memcpy(tmp + plen, ".tmp.XXXXXX", 12);
+    int fd = mkstemp(tmp);
+    if (fd < 0) {
+        cli_errorf("'%s': cannot create a temporary file beside it: %s", path, strerror(errno));
+        free(tmp);
+        return CLI_EXIT_DATA;
+    }
+    mode_t um = umask(0);   /* mkstemp makes 0600; give the file the usual permissions */
+    umask(um);
+    if (fchmod(fd, 0666 & ~um) != 0) { /* keep 0600: not worth failing for */ }
+    FILE *f = fdopen(fd, "w");
+    int ok = f && fwrite(text, 1, len, f) == len;
+    ok = (f && fclose(f) == 0) && ok;
+    if (!f)
+        close(fd);
+    if (!ok || rename(tmp, path) != 0) {
+        cli_errorf("'%s': cannot write: %s", path, strerror(errno));
+        unlink(tmp);
+        free(tmp);
+        return CLI_EXIT_DATA;
+    }
+    free(tmp);
+    return 0;
+}

@@ -1,0 +1,81 @@
+/* Helpers shared by the Check suites: temporary files, reference-data paths, tolerances. */
+#include "testutil.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+static char tmpdir[256];
+static char paths[64][512];
+static unsigned slot;
+
+static void cleanup(void)
+{
+    if (tmpdir[0]) {
+        char cmd[300];
+        snprintf(cmd, sizeof cmd, "rm -rf '%s'", tmpdir);
+        if (system(cmd) != 0) { /* nothing more to do */ }
+    }
+}
+
+static const char *dir(void)
+{
+    if (!tmpdir[0]) {
+        const char *base = getenv("TMPDIR");
+        snprintf(tmpdir, sizeof tmpdir, "%s/cs_test_XXXXXX", base && *base ? base : "/tmp");
+        if (!mkdtemp(tmpdir)) {
+            perror("mkdtemp");
+            abort();
+        }
+        atexit(cleanup);
+    }
+    return tmpdir;
+}
+
+const char *tu_tmp_path(const char *name)
+{
+    char *p = paths[slot++ % 64];
+    snprintf(p, 512, "%s/%s", dir(), name);
+    return p;
+}
+
+const char *tu_write_file(const char *name, const void *data, size_t len)
+{
+    const char *p = tu_tmp_path(name);
+    FILE *f = fopen(p, "wb");
+    if (!f || (len && fwrite(data, 1, len, f) != len) || fclose(f) != 0) {
+        perror(p);
+        abort();
+    }
+    return p;
+}
+
+const char *tu_write_text(const char *name, const char *text)
+{
+    return tu_write_file(name, text, strlen(text));
+}
+
+const char *tu_data_path(const char *name)
+{
+    const char *d = getenv("CS_TEST_DATA");
+    char *p = paths[slot++ % 64];
+    snprintf(p, 512, "%s/%s", d ? d : "tests/data", name);
+    return p;
+}
+
+const char *tu_reference_path(const char *rel)
+{
+    const char *d = getenv("CS_SHARED_DIR");
+    char *p = paths[slot++ % 64];
+    snprintf(p, 512, "%s/reference/%s", d ? d : "../shared", rel);
+    return access(p, R_OK) == 0 ? p : NULL;
+}
+
+int tu_close(double a, double b, double rtol)
+{
+    if (b == 0.0)
+        return fabs(a) <= rtol;
+    return fabs(a - b) <= rtol * fabs(b);
+}
