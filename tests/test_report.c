@@ -1,0 +1,95 @@
+/* Tests of the report module: value(error) notation and atomic output files. */
+#include <check.h>
+#include <stdio.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include <collshift/report.h>
+#include "testutil.h"
+
+typedef struct {
+    double value, err;
+    cs_dim dim;
+    const char *want;
+    const char *source;
+} fmt_case;
+
+static const fmt_case fmt_cases[] = {
+    /* JCGM 100:2008 (GUM) 7.2.2: "m_s = 100.021 47(35) g" (concise form; from memory) */
+    {100.02147, 0.00035, CS_DIM_DIMENSIONLESS, "100.02147(35)", "GUM 7.2.2"},
+    /* CODATA 2018 fine-structure constant 7.297 352 5693(11) x 10^-3 (from memory) */
+    {7.2973525693e-3, 1.1e-12, CS_DIM_DIMENSIONLESS, "0.0072973525693(11)", "CODATA 2018 alpha"},
+    /* CODATA 2018 Rydberg constant 10 973 731.568 160(21) m^-1, shown per cm (from memory) */
+    {10973731.568160, 0.000021, CS_DIM_WAVENUMBER, "1.0973731568160(21)e+05 cm^-1", "CODATA 2018 R_inf"},
+    /* The notation rules themselves (common practice): two digits of the error, same decimal place */
+    {-1234567.0, 15000.0, CS_DIM_FREQUENCY, "-1.235(15) MHz", "rounding"},
+    {1.0, 0.0996, CS_DIM_FREQUENCY, "1.00(10) Hz", "carry into a third digit"},
+    {0.5e6, 1.2e6, CS_DIM_FREQUENCY, "0.5(12) MHz", "error larger than value"},
+    {123.4, 25.0, CS_DIM_FREQUENCY, "123(25) Hz", "integer places"},
+    {123.0, 250.0, CS_DIM_FREQUENCY, "120(250) Hz", "error of hundreds of units"},
+    {384230484468500.0, 1200.0, CS_DIM_FREQUENCY, "384.2304844685(12) THz", "optical frequency: prefix from the value"},
+    {2.5e-8, 3.1e-10, CS_DIM_TIME, "25.00(31) ns", "time prefix"},
+    {3.2e19, 1.5e18, CS_DIM_DENSITY, "3.20(15)e+13 cm^-3", "density in cm^-3"},
+    {1e6, 0.0, CS_DIM_FREQUENCY, "1 MHz (no error)", "no error"},
+};
+
+START_TEST(test_format_value_err)
+{
+    const fmt_case *c = &fmt_cases[_i];
+    char buf[96];
+    cs_format_value_err(c->value, c->err, c->dim, buf, sizeof buf);
+    ck_assert_msg(strcmp(buf, c->want) == 0, "%s: got '%s', want '%s'", c->source, buf, c->want);
+}
+END_TEST
+
+START_TEST(test_format_nan)
+{
+    char buf[64];
+    cs_format_value_err(0.0 / 0.0, 1.0, CS_DIM_FREQUENCY, buf, sizeof buf);
+    ck_assert_str_eq(buf, "nan Hz");
+}
+END_TEST
+
+START_TEST(test_atomic_write)
+{
+    const char *p = tu_tmp_path("out.json");
+    cs_error err;
+    cs_error_clear(&err);
+    ck_assert_int_eq(cs_write_atomic(p, "first\n", 6, &err), CS_OK);
+    ck_assert_int_eq(cs_write_atomic(p, "second\n", 7, &err), CS_OK);
+    FILE *f = fopen(p, "r");
+    ck_assert_ptr_nonnull(f);
+    char line[32] = "";
+    ck_assert_ptr_nonnull(fgets(line, sizeof line, f));
+    fclose(f);
+    ck_assert_str_eq(line, "second\n");
+    struct stat st;
+    ck_assert_int_eq(stat(p, &st), 0);
+    ck_assert_msg((st.st_mode & 0044) != 0, "output should be readable by others like any new file");
+    /* a folder that does not exist: CS_EIO with the path in the report */
+    ck_assert_int_eq(cs_write_atomic("/nonexistent-dir/x.json", "x", 1, &err), CS_EIO);
+    ck_assert_str_eq(err.file, "/nonexistent-dir/x.json");
+}
+END_TEST
+
+static Suite *report_suite(void)
+{
+    Suite *s = suite_create("report");
+    TCase *t = tcase_create("value_err");
+    tcase_add_loop_test(t, test_format_value_err, 0, (int)(sizeof fmt_cases / sizeof fmt_cases[0]));
+    tcase_add_test(t, test_format_nan);
+    suite_add_tcase(s, t);
+    t = tcase_create("atomic");
+    tcase_add_test(t, test_atomic_write);
+    suite_add_tcase(s, t);
+    return s;
+}
+
+int main(void)
+{
+    SRunner *r = srunner_create(report_suite());
+    srunner_run_all(r, CK_NORMAL);
+    int failed = srunner_ntests_failed(r);
+    srunner_free(r);
+    return failed ? 1 : 0;
+}
