@@ -34,7 +34,7 @@ static const char *base_symbol(cs_dim dim, int *prefixable, double *to_display)
     case CS_DIM_FREQUENCY: return "Hz";
     case CS_DIM_TIME: return "s";
     case CS_DIM_LENGTH: return "m";
-    case CS_DIM_RATE: return "s^-1";
+    case CS_DIM_RATE: *prefixable = 0; return "s^-1";   /* "Gs^-1" would read as (Gs)^-1 */
     case CS_DIM_PRESSURE: return "Pa";
     case CS_DIM_TEMPERATURE: *prefixable = 0; return "K";
     case CS_DIM_WAVENUMBER: *prefixable = 0; *to_display = 0.01; return "cm^-1";

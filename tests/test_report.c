@@ -31,6 +31,8 @@ static const fmt_case fmt_cases[] = {
     {2.5e-8, 3.1e-10, CS_DIM_TIME, "25.00(31) ns", "time prefix"},
     {3.2e19, 1.5e18, CS_DIM_DENSITY, "3.20(15)e+13 cm^-3", "density in cm^-3"},
     {1e6, 0.0, CS_DIM_FREQUENCY, "1 MHz (no error)", "no error"},
+    /* decay rates get a power of ten, not a prefix: "Gs^-1" would read as (Gs)^-1 */
+    {2.79e9, 0.42e9, CS_DIM_RATE, "2.79(42)e+09 s^-1", "rate"},
 };
 
 START_TEST(test_format_value_err)

@@ -22,12 +22,18 @@ typedef struct cli_command {
     const char *name;
     int (*handler)(int argc, char **argv);
     const char *summary;
-    const char *usage;      /* full usage text printed by `collshift help NAME` and `NAME --help` */
+    const char *const *usage; /* usage text printed by `collshift help NAME` and `NAME --help`, as
+                                 NULL-terminated chunks (ISO C caps one string literal at 4095) */
 } cli_command;
 
 /* Handlers, one file each in src/cli/. */
 int cmd_info(int argc, char **argv);
-extern const char cmd_info_usage[];
+extern const char *const cmd_info_usage[];
+int cmd_fit(int argc, char **argv);
+extern const char *const cmd_fit_usage[];
+
+/* Print a command's usage chunks to f. */
+void cli_print_usage(const cli_command *c, FILE *f);
 
 /* The command table (main.c). */
 const cli_command *cli_find_command(const char *name);

@@ -1,12 +1,12 @@
 /* Helpers shared by the subcommands: the file-loading options and atomic output files. */
 #include "cli.h"
 
+#include <collshift/report.h>
+
 #include <errno.h>
 #include <limits.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
-#include <unistd.h>
 
 enum {
     OPT_X = CLI_LOAD_OPT_BASE, OPT_Y, OPT_SIGMA, OPT_T, OPT_I, OPT_Q, OPT_X_UNIT, OPT_T_UNIT,
@@ -190,34 +190,9 @@ int cli_write_text(const char *path, const char *text)
         }
         return 0;
     }
-    size_t plen = strlen(path);
-    char *tmp = malloc(plen + 16);
-    if (!tmp) {
-        cli_errorf("out of memory");
-        return CLI_EXIT_DATA;
-    }
-    memcpy(tmp, path, plen);
-    memcpy(tmp + plen, ".tmp.XXXXXX", 12);
-    int fd = mkstemp(tmp);
-    if (fd < 0) {
-        cli_errorf("'%s': cannot create a temporary file beside it: %s", path, strerror(errno));
-        free(tmp);
-        return CLI_EXIT_DATA;
-    }
-    mode_t um = umask(0);   /* mkstemp makes 0600; give the file the usual permissions */
-    umask(um);
-    if (fchmod(fd, 0666 & ~um) != 0) { /* keep 0600: not worth failing for */ }
-    FILE *f = fdopen(fd, "w");
-    int ok = f && fwrite(text, 1, len, f) == len;
-    ok = (f && fclose(f) == 0) && ok;
-    if (!f)
-        close(fd);
-    if (!ok || rename(tmp, path) != 0) {
-        cli_errorf("'%s': cannot write: %s", path, strerror(errno));
-        unlink(tmp);
-        free(tmp);
-        return CLI_EXIT_DATA;
-    }
-    free(tmp);
+    cs_error err;
+    cs_error_clear(&err);
+    if (cs_write_atomic(path, text, len, &err) != CS_OK)
+        return cli_report(&err);
     return 0;
 }

@@ -6,7 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-const char cmd_info_usage[] =
+const char *const cmd_info_usage[] = {
     "usage: collshift info FILE... [--json FILE] [file options]\n"
     "\n"
     "Loads each file and prints what was loaded: format and kind (spectrum or record), number of\n"
@@ -16,10 +16,13 @@ const char cmd_info_usage[] =
     "\n"
     "Options:\n"
     "  --json FILE      also write the description as JSON ('-' for standard output)\n"
-    "\n" CLI_LOAD_OPTIONS_HELP
+    "\n",
+    CLI_LOAD_OPTIONS_HELP,
     "\n"
     "A file that cannot be loaded is reported on stderr as 'collshift: FILE: line N: problem'; the\n"
-    "other files are still described and the exit code is 3.\n";
+    "other files are still described and the exit code is 3.\n",
+    NULL,
+};
 
 /* Relative spread of the steps of an axis: max |step - mean| / |mean|. */
 static double step_spread(const double *x, size_t n, double *mean_out)

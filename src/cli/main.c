@@ -12,6 +12,7 @@
 static const cli_command commands[] = {
     {"info", cmd_info, "describe files: kind, points, axis range and step, units, metadata, noise",
      cmd_info_usage},
+    {"fit", cmd_fit, "fit line profiles plus a baseline to spectra, with standard errors", cmd_fit_usage},
 };
 static const size_t ncommands = sizeof commands / sizeof commands[0];
 
@@ -42,6 +43,12 @@ const cli_command *cli_find_command(const char *name)
         if (strcmp(commands[i].name, name) == 0)
             return &commands[i];
     return NULL;
+}
+
+void cli_print_usage(const cli_command *c, FILE *f)
+{
+    for (const char *const *p = c->usage; *p; p++)
+        fputs(*p, f);
 }
 
 static void print_main_usage(FILE *f)
@@ -114,7 +121,7 @@ int main(int argc, char **argv)
             cli_errorf("'%s' is not a command; see 'collshift --help'", argv[2]);
             return CLI_EXIT_USAGE;
         }
-        fputs(c->usage, stdout);
+        cli_print_usage(c, stdout);
         return finish_stdout(CLI_EXIT_OK);
     }
     const cli_command *c = cli_find_command(cmd);
@@ -126,7 +133,7 @@ int main(int argc, char **argv)
         if (strcmp(argv[i], "--") == 0)
             break;
         if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
-            fputs(c->usage, stdout);
+            cli_print_usage(c, stdout);
             return finish_stdout(CLI_EXIT_OK);
         }
     }

@@ -1,0 +1,484 @@
+/* The solver core of the fit: internal variables and bound transforms, residuals (Gaussian and
+ * Poisson deviance), GSL trust-region callbacks, convergence tests.
+ *
+ * Internal variables. The solver never sees the physical parameters (centres near 1e14 Hz, widths
+ * of 1e6 Hz, areas of any size). Each free parameter p has an internal variable t of order one:
+ *   no bound:      p = c + s t                  c = the starting value, s = a typical size
+ *   lower bound:   p = lo + s (sqrt(1 + t^2) - 1)
+ *   upper bound:   p = hi - s (sqrt(1 + t^2) - 1)
+ *   both bounds:   p = lo + (hi - lo) (1 + sin t) / 2
+ * The two last forms are those of MINUIT (F. James and M. Roos, Comput. Phys. Commun. 10, 343
+ * (1975); F. James, MINUIT user's guide, CERN Program Library D506, "parameter limits"). They are
+ * smooth, reach the bound exactly (t = 0, t = -pi/2) and their derivative vanishes only there.
+ * They are evaluated without cancellation: sqrt(1 + t^2) - 1 = t^2 / (sqrt(1 + t^2) + 1) and
+ * (1 + sin t) / 2 = sin^2(t/2 + pi/4) (or 1 - cos^2 near the upper bound). A starting value on or
+ * beyond a bound is moved 1e-4 (relative to s, or to the range) inside. The typical sizes s are
+ * chosen in fit.c (setup_scales) so that every column of the Jacobian has a comparable size and
+ * the step test below means "relative to the parameter's own scale"; GSL's More scaling
+ * (gsl_multifit_nlinear_scale_more) is used on top.
+ *
+ * Ties. After every update cs_model_apply_ties sets the tied parameters; in the Jacobian the
+ * column of a master receives factor x the column of each parameter tied to it (chain rule for
+ * p_tied = factor p_master + offset): cs_model_eval_jac gives the derivatives with respect to all
+ * parameters, and d r_i / d t_j = w_i (dm_i/dp_j + sum_tied factor dm_i/dp_tied) dp_j/dt_j.
+ *
+ * Step solver. GSL's Levenberg-Marquardt trust region (gsl_multifit_nlinear_trs_lm; trs_lmaccel
+ * with geodesic acceleration, M. K. Transtrum, B. B. Machta and J. P. Sethna, Phys. Rev. E 83,
+ * 036701 (2011)) solves its subproblem through the normal equations with GSL's modified Cholesky
+ * (gsl_multifit_nlinear_solver_mcholesky, which stays usable when J^T J is singular): a step only
+ * has to lower the cost, the accuracy of the solution is set by the residuals and the Jacobian.
+ * It is about a third faster than the QR solver on 2048 x 9 Jacobians and gives the NIST StRD
+ * results to the same digits (tests/test_fit.c). The covariance is formed by QR (fit_covar.c).
+ *
+ * One model evaluation per iteration. The residual callback evaluates model and Jacobian
+ * together (a Voigt value and all its derivatives come from one Faddeeva evaluation) and keeps
+ * them with the internal variables they belong to; the Jacobian callback, which GSL calls at the
+ * point whose residuals it has just accepted, reuses them. A point where the model is invalid or
+ * not finite gets a huge residual (1e100 in norm), so the trust region rejects it and shrinks.
+ *
+ * Weights and residuals. r_i = (m_i - y_i) / sigma_i with sigma_i given (SIGMA), 1 (NOISE) or
+ * sqrt(max(y_i, 1)) (POISSON, Neyman's chi2). Cash: the Poisson deviance residual
+ *   r_i = sign(m_i - y_i) sqrt(2 (m_i - y_i - y_i ln(m_i / y_i))),  (y_i ln(..) = 0 for y_i = 0)
+ * whose squares sum to the deviance 2 sum(m_i - y_i ln m_i) - (its value at m = y), i.e. the Cash
+ * statistic (W. Cash, ApJ 228, 939 (1979)) up to a constant of the data (S. Baker and
+ * R. D. Cousins, Nucl. Instrum. Meth. 221, 437 (1984)), so least squares on r is maximum
+ * likelihood. From r^2 = 2 D, D = m - y - y ln(m/y), dD/dm = 1 - y/m: d r_i / d m_i =
+ * (1 - y_i/m_i) / r_i, whose limit as m_i -> y_i is 1/sqrt(m_i) (and 1/r = 1/sqrt(2 m) for y = 0).
+ * D = y (u - ln(1 + u)), u = (m - y)/y, is summed as a series for |u| < 0.05 so that r keeps its
+ * full relative accuracy near the minimum. m_i <= 0 counts as an invalid model.
+ *
+ * Convergence. Small step: |dt_j| <= xtol (1 + |t_j|) for every j (GSL's own test uses
+ * xtol (xtol + |t_j|), too strict for variables that pass through 0), a change below 8 ulps of
+ * the parameter itself counting as none (a centre near 4e14 Hz is resolved to 0.06 Hz only,
+ * 2e-9 of a 40 MHz width, so xtol = 1e-10 could not be met otherwise). Once the accepted steps
+ * are below 1e4 xtol, the undamped Gauss-Newton step d from the current point is computed too
+ * (normal equations, k x k Cholesky: cheap next to a model evaluation). The fit has converged
+ * when d is below xtol, or when d is below 1e4 xtol and the decrease of the cost it predicts is
+ * below 16 eps times the cost: no trust-region trial could show a decrease any more (the solver
+ * would reject 15 steps and give up). d is then applied as the last step: it comes from the
+ * gradient, which stays accurate far below the rounding level of the cost; the driver checks
+ * that the cost did not rise and otherwise keeps the point before it. This saves a third of the
+ * model evaluations of a typical fit and most of those of a poorly matching model, and gives
+ * the NIST StRD Gauss1-3 values to 10-11 digits. Small gradient and small change:
+ * gsl_multifit_nlinear_test. If the solver still reports no progress (15 rejected steps in a
+ * row, GSL_ENOPROG), the fit counts as converged when the last accepted step was below 1e4 xtol
+ * and the rejected trials were not model failures (the cost is then flat to rounding: the last
+ * accepted steps of such fits are 1e-10 .. 1e-8 relative), and as not converged otherwise. */
+#include <collshift/fit.h>
+
+#include "fit_impl.h"
+
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_linalg.h>
+
+#include <float.h>
+#include <math.h>
+#include <string.h>
+
+#define PI_ 3.14159265358979323846
+#define FIT_CLAMP 1e-4        /* starting values are kept this far (relative) inside a bound */
+#define FIT_PENALTY 1e100     /* norm of the residual vector at an invalid point */
+#define FIT_NOPROG_XTOL 1e4   /* steps below this * xtol: look at the Gauss-Newton step */
+#define FIT_ROUNDING 16.0     /* a predicted cost decrease below this * eps * cost is invisible */
+
+/* ---------------------------------------------------------------- GSL workspace */
+
+/* GSL's workspace is tied to (n, p, method): keep it while they stay the same. */
+static int ensure_gsl(cs_fit_workspace *w, size_t n, size_t k, int accel)
+{
+    if (w->gw && w->gw_n == n && w->gw_p == k && w->gw_accel == accel)
+        return CS_OK;
+    if (w->gw)
+        gsl_multifit_nlinear_free(w->gw);
+    gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
+    fp.trs = accel ? gsl_multifit_nlinear_trs_lmaccel : gsl_multifit_nlinear_trs_lm;
+    fp.scale = gsl_multifit_nlinear_scale_more;
+    fp.solver = gsl_multifit_nlinear_solver_mcholesky;
+    w->gw = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, n, k);
+    if (!w->gw)
+        return CS_ENOMEM;
+    w->gw_n = n;
+    w->gw_p = k;
+    w->gw_accel = accel;
+    return CS_OK;
+}
+
+/* ---------------------------------------------------------------- transforms */
+
+static double tr_value(const fit_free *f, double t)
+{
+    switch (f->kind) {
+    case FIT_TR_LOWER:
+        return f->lo + f->s * (t * (t / (hypot(1.0, t) + 1.0)));
+    case FIT_TR_UPPER:
+        return f->hi - f->s * (t * (t / (hypot(1.0, t) + 1.0)));
+    case FIT_TR_BOTH: {
+        double a = 0.5 * t + 0.25 * PI_, sa = sin(a), ca = cos(a);
+        return sa * sa <= 0.5 ? f->lo + (f->hi - f->lo) * sa * sa : f->hi - (f->hi - f->lo) * ca * ca;
+    }
+    default:
+        return f->c + f->s * t;
+    }
+}
+
+static double tr_deriv(const fit_free *f, double t)
+{
+    switch (f->kind) {
+    case FIT_TR_LOWER:
+        return f->s * t / hypot(1.0, t);
+    case FIT_TR_UPPER:
+        return -f->s * t / hypot(1.0, t);
+    case FIT_TR_BOTH:
+        return 0.5 * (f->hi - f->lo) * cos(t);
+    default:
+        return f->s;
+    }
+}
+
+/* Internal variable of value p; values on or beyond a bound are moved FIT_CLAMP inside. */
+static double tr_inverse(const fit_free *f, double p)
+{
+    switch (f->kind) {
+    case FIT_TR_LOWER:
+    case FIT_TR_UPPER: {
+        double u = (f->kind == FIT_TR_LOWER ? p - f->lo : f->hi - p) / f->s;
+        if (!(u >= FIT_CLAMP))
+            u = FIT_CLAMP;
+        return sqrt(u * (u + 2.0));
+    }
+    case FIT_TR_BOTH: {
+        double a = (p - f->lo) / (f->hi - f->lo);
+        if (!(a >= FIT_CLAMP))
+            a = FIT_CLAMP;
+        if (a > 1.0 - FIT_CLAMP)
+            a = 1.0 - FIT_CLAMP;
+        return 2.0 * asin(sqrt(a)) - 0.5 * PI_;
+    }
+    default:
+        return (p - f->c) / f->s;
+    }
+}
+
+double cs_fit_impl_clamp(const fit_free *f, double p)
+{
+    if (f->kind == FIT_TR_NONE)
+        return p;
+    return tr_value(f, tr_inverse(f, p));
+}
+
+/* ---------------------------------------------------------------- residuals and evaluation */
+
+/* Poisson deviance residual and d r / d m (see the essay); NaN when m <= 0 or not finite. */
+static double cash_resid(double m, double y, double *drdm)
+{
+    if (!(m > 0.0) || !isfinite(m)) {
+        *drdm = NAN;
+        return NAN;
+    }
+    if (y == 0.0) {
+        double r = sqrt(2.0 * m);
+        *drdm = 1.0 / r;
+        return r;
+    }
+    double u = (m - y) / y, h;
+    if (fabs(u) < 0.05) {
+        /* u - ln(1 + u) = sum_{k>=2} (-u)^k / k, to k = 14 (truncation < 1e-17 relative) */
+        double s = 0.0;
+        for (int k = 14; k >= 2; k--)
+            s = s * u + ((k % 2) ? -1.0 : 1.0) / k;
+        h = u * u * s;
+    } else {
+        h = u - log1p(u);
+    }
+    double r = sqrt(2.0 * y * (h > 0.0 ? h : 0.0));
+    if (u < 0.0)
+        r = -r;
+    *drdm = r != 0.0 ? ((m - y) / m) / r : 1.0 / sqrt(m);
+    return r;
+}
+
+void cs_fit_impl_weights(cs_fit_workspace *w)
+{
+    const size_t n = w->n;
+    for (size_t i = 0; i < n; i++) {
+        switch (w->weighting) {
+        case CS_WEIGHT_SIGMA: w->sw[i] = 1.0 / w->sig[i]; break;
+        case CS_WEIGHT_POISSON: w->sw[i] = 1.0 / sqrt(w->ycur[i] > 1.0 ? w->ycur[i] : 1.0); break;
+        default: w->sw[i] = 1.0; break;
+        }
+    }
+}
+
+/* Model, Jacobian and residuals at w->p. Returns 1 when everything is finite. */
+static int eval_core(cs_fit_workspace *w)
+{
+    const size_t n = w->n;
+    int ok = cs_model_eval_jac(w->m, w->p, w->x, n, w->mval, w->Jfull, w->np, w->work) == CS_OK;
+    const double *y = w->ycur;
+    const int cash = w->weighting == CS_WEIGHT_CASH;
+    for (size_t i = 0; ok && i < n; i++) {
+        double mi = w->mval[i], r, d;
+        if (cash) {
+            r = cash_resid(mi, y[i], &d);
+        } else {
+            d = w->sw[i];
+            r = (mi - y[i]) * d;
+        }
+        if (!isfinite(r)) {
+            ok = 0;
+            break;
+        }
+        w->res[i] = r;
+        w->dfac[i] = d;
+    }
+    w->last_nan = !ok;
+    return ok;
+}
+
+int cs_fit_impl_eval(cs_fit_workspace *w, const double *p)
+{
+    memcpy(w->p, p, w->np * sizeof *p);
+    w->cache_ok = 0;
+    return eval_core(w);
+}
+
+/* w->p from internal variables t (free values transformed, ties applied). */
+static void params_from_theta(cs_fit_workspace *w, const double *t)
+{
+    memcpy(w->p, w->pbase, w->np * sizeof *w->p);
+    for (size_t j = 0; j < w->nfree; j++)
+        w->p[w->fr[j].idx] = tr_value(&w->fr[j], t[j]);
+    cs_model_apply_ties(w->m, w->p);
+}
+
+static int eval_theta(cs_fit_workspace *w, const gsl_vector *th)
+{
+    for (size_t j = 0; j < w->nfree; j++)
+        w->thcache[j] = gsl_vector_get(th, j);
+    params_from_theta(w, w->thcache);
+    w->cache_ok = eval_core(w);
+    return w->cache_ok;
+}
+
+static int cb_f(const gsl_vector *th, void *params, gsl_vector *f)
+{
+    cs_fit_workspace *w = params;
+    const size_t n = w->n;
+    w->nfev++;
+    if (!eval_theta(w, th)) {
+        double v = FIT_PENALTY / sqrt((double)n);
+        for (size_t i = 0; i < n; i++)
+            f->data[i * f->stride] = v;
+        return GSL_SUCCESS;
+    }
+    for (size_t i = 0; i < n; i++)
+        f->data[i * f->stride] = w->res[i];
+    return GSL_SUCCESS;
+}
+
+static int cb_df(const gsl_vector *th, void *params, gsl_matrix *J)
+{
+    cs_fit_workspace *w = params;
+    const size_t n = w->n, k = w->nfree, np = w->np;
+    w->njev++;
+    int same = w->cache_ok;
+    for (size_t j = 0; same && j < k; j++)
+        same = gsl_vector_get(th, j) == w->thcache[j];
+    if (!same && !eval_theta(w, th))
+        return GSL_EDOM;
+    for (size_t j = 0; j < k; j++)
+        w->dpdt[j] = tr_deriv(&w->fr[j], w->thcache[j]);
+    int bad = 0;
+    for (size_t i = 0; i < n; i++) {
+        const double *row = w->Jfull + i * np;
+        double *out = J->data + i * J->tda, d = w->dfac[i];
+        for (size_t j = 0; j < k; j++) {
+            double v = cs_fit_impl_column(w, row, &w->fr[j]) * d * w->dpdt[j];
+            bad |= !isfinite(v);
+            out[j] = v;
+        }
+    }
+    return bad ? GSL_EDOM : GSL_SUCCESS;
+}
+
+/* ---------------------------------------------------------------- the solver */
+
+/* |dt_j| <= tol (1 + |t_j|) for all j, where a step below 8 ulps of the parameter itself counts
+ * as zero: a centre near 4e14 Hz is only resolved to 0.06 Hz, 2e-9 of a 40 MHz width. */
+static int small_step(const cs_fit_workspace *w, const gsl_vector *x, const gsl_vector *dx, double tol)
+{
+    for (size_t j = 0; j < x->size; j++) {
+        double t = gsl_vector_get(x, j), d = fabs(tr_deriv(&w->fr[j], t));
+        double ulps = d > 0.0 ? 8.0 * DBL_EPSILON * fabs(tr_value(&w->fr[j], t)) / d : 0.0;
+        if (!(fabs(gsl_vector_get(dx, j)) <= tol * (1.0 + fabs(t)) + ulps))
+            return 0;
+    }
+    return 1;
+}
+
+/* The undamped Gauss-Newton step d from the current point, (J^T J) d = -J^T f by Cholesky (k x k,
+ * cheap next to a model evaluation), into w->nrm. Returns 1 when the fit has converged: d is
+ * below xtol, or d is below FIT_NOPROG_XTOL xtol and the decrease of the cost it predicts,
+ * -g.d, is below FIT_ROUNDING eps cost, so that no trial step could show a decrease. */
+static int gauss_newton_final(cs_fit_workspace *w, double xtol)
+{
+    const size_t k = w->nfree;
+    gsl_multifit_nlinear_workspace *gw = w->gw;
+    const gsl_matrix *J = gsl_multifit_nlinear_jac(gw);
+    const gsl_vector *f = gsl_multifit_nlinear_residual(gw);
+    gsl_matrix_view A = gsl_matrix_view_array(w->gram, k, k);
+    gsl_vector_view g = gsl_vector_view_array(w->colnorm, k), d = gsl_vector_view_array(w->nrm, k);
+    gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, J, 0.0, &A.matrix);
+    gsl_blas_dgemv(CblasTrans, -1.0, J, f, 0.0, &g.vector);
+    if (gsl_linalg_cholesky_decomp1(&A.matrix) != GSL_SUCCESS ||
+        gsl_linalg_cholesky_solve(&A.matrix, &g.vector, &d.vector) != GSL_SUCCESS)
+        return 0;
+    if (small_step(w, gw->x, &d.vector, xtol))
+        return 1;
+    if (!small_step(w, gw->x, &d.vector, FIT_NOPROG_XTOL * xtol))
+        return 0;
+    double dec, fn = gsl_blas_dnrm2(f);
+    gsl_blas_ddot(&g.vector, &d.vector, &dec);
+    return dec <= FIT_ROUNDING * DBL_EPSILON * fn * fn;
+}
+
+int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double *p, fit_outcome *o)
+{
+    const size_t k = w->nfree, n = w->n, np = w->np;
+    o->status = CS_FIT_NOT_CONVERGED;
+    o->stop = CS_FIT_STOP_NONE;
+    o->niter = o->nfev = o->njev = 0;
+    o->cost = NAN;
+    o->polished = 0;
+    w->nfev = w->njev = 0;
+    w->cache_ok = 0;
+    for (size_t i = 0; i < np; i++)
+        if (!isfinite(p[i])) {
+            o->status = CS_FIT_MODEL_NAN;
+            o->stop = CS_FIT_STOP_MODEL_NAN;
+            return CS_OK;
+        }
+    memcpy(w->pbase, p, np * sizeof *p);
+    for (size_t j = 0; j < k; j++) {
+        fit_free *f = &w->fr[j];
+        if (f->kind == FIT_TR_NONE)
+            f->c = p[f->idx];
+        w->theta[j] = tr_inverse(f, p[f->idx]);
+    }
+    if (k == 0) {
+        o->nfev = 1;
+        if (!cs_fit_impl_eval(w, p)) {
+            o->status = CS_FIT_MODEL_NAN;
+            o->stop = CS_FIT_STOP_MODEL_NAN;
+            return CS_OK;
+        }
+        double c = 0.0;
+        for (size_t i = 0; i < n; i++)
+            c += w->res[i] * w->res[i];
+        o->cost = c;
+        o->status = CS_FIT_CONVERGED;
+        return CS_OK;
+    }
+    int rc = ensure_gsl(w, n, k, par->geodesic != 0);
+    if (rc != CS_OK)
+        return rc;
+    w->fdf.f = cb_f;
+    w->fdf.df = cb_df;
+    w->fdf.fvv = NULL;
+    w->fdf.n = n;
+    w->fdf.p = k;
+    w->fdf.params = w;
+    w->last_nan = 0;
+    gsl_vector_view th0 = gsl_vector_view_array(w->theta, k);
+    int s = gsl_multifit_nlinear_winit(&th0.vector, NULL, &w->fdf, w->gw);
+    if (s != GSL_SUCCESS || w->last_nan) {
+        o->status = CS_FIT_MODEL_NAN;
+        o->stop = CS_FIT_STOP_MODEL_NAN;
+        o->nfev = w->nfev;
+        o->njev = w->njev;
+        return s == GSL_ENOMEM ? CS_ENOMEM : CS_OK;
+    }
+    gsl_multifit_nlinear_workspace *gw = w->gw;
+    size_t iter = 0;
+    int prev_small = 0; /* the last accepted step was below FIT_NOPROG_XTOL * xtol */
+    int polish = 0;     /* end with the Gauss-Newton step in w->nrm */
+    for (;;) {
+        if (iter >= par->max_iter) {
+            o->stop = CS_FIT_STOP_MAX_ITER;
+            break;
+        }
+        s = gsl_multifit_nlinear_iterate(gw);
+        iter++;
+        if (s == GSL_ENOPROG) {
+            if (w->last_nan) {
+                o->status = CS_FIT_MODEL_NAN;
+                o->stop = CS_FIT_STOP_MODEL_NAN;
+            } else {
+                o->stop = CS_FIT_STOP_NO_PROGRESS;
+                if (prev_small)
+                    o->status = CS_FIT_CONVERGED;
+            }
+            break;
+        }
+        if (s != GSL_SUCCESS) {
+            if (s == GSL_EDOM || w->last_nan) {
+                o->status = CS_FIT_MODEL_NAN;
+                o->stop = CS_FIT_STOP_MODEL_NAN;
+            } else {
+                o->stop = CS_FIT_STOP_NO_PROGRESS;
+            }
+            break;
+        }
+        if (small_step(w, gw->x, gw->dx, par->xtol)) {
+            o->status = CS_FIT_CONVERGED;
+            o->stop = CS_FIT_STOP_SMALL_STEP;
+            break;
+        }
+        prev_small = small_step(w, gw->x, gw->dx, FIT_NOPROG_XTOL * par->xtol);
+        if (prev_small && gauss_newton_final(w, par->xtol)) {
+            o->status = CS_FIT_CONVERGED;
+            o->stop = CS_FIT_STOP_SMALL_STEP;
+            polish = 1;
+            break;
+        }
+        int info = 0;
+        if (gsl_multifit_nlinear_test(0.0, par->gtol, par->ftol, &info, gw) == GSL_SUCCESS && info >= 2) {
+            o->status = CS_FIT_CONVERGED;
+            o->stop = info == 2 ? CS_FIT_STOP_SMALL_GRADIENT : CS_FIT_STOP_SMALL_CHANGE;
+            break;
+        }
+    }
+    const gsl_vector *x = gsl_multifit_nlinear_position(gw);
+    for (size_t j = 0; j < k; j++)
+        w->pwork[j] = gsl_vector_get(x, j);
+    params_from_theta(w, w->pwork);
+    o->polished = polish;
+    if (polish) {
+        memcpy(w->ppre, w->p, np * sizeof *p);
+        for (size_t j = 0; j < k; j++)
+            w->pwork[j] += w->nrm[j];
+        params_from_theta(w, w->pwork);
+    }
+    w->cache_ok = 0;
+    memcpy(p, w->p, np * sizeof *p);
+    double fn = gsl_blas_dnrm2(gsl_multifit_nlinear_residual(gw));
+    o->cost = fn * fn;
+    o->niter = iter;
+    o->nfev = w->nfev;
+    o->njev = w->njev;
+    return CS_OK;
+}
+
+void cs_fit_impl_check_polish(cs_fit_workspace *w, double *p, fit_outcome *o)
+{
+    if (!o->polished)
+        return;
+    o->polished = 0;
+    double c = 0.0;
+    int ok = cs_fit_impl_eval(w, p);
+    for (size_t i = 0; ok && i < w->n; i++)
+        c += w->res[i] * w->res[i];
+    if (!ok || !(c <= o->cost * (1.0 + 1e-9)))
+        memcpy(p, w->ppre, w->np * sizeof *p);
+}
