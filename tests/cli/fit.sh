@@ -49,6 +49,17 @@ assert v["profile"] == "voigt" and "fwhm_g_hz" in v and "fwhm_l_hz" in v and "fw
 assert len(d["comparison"]) == 2 and "delta_bic" in d["comparison"][1]
 PY
 
+# --range and --exclude leave points out: the JSON says how many were used
+expect_code 0 "$CS_BIN" fit "$S" --model lorentz+lorentz --range 384229.5GHz:384231.5GHz \
+  --exclude 384230.6GHz:384230.7GHz --json "$TMP/rg.json"
+python3 - "$TMP/rg.json" "$S" <<'PY' && ok || bad "range/exclude point count"
+import json, sys
+d = json.load(open(sys.argv[1]))["fits"][0]
+xs = [float(l.split(",")[0]) for l in open(sys.argv[2]) if l[0].isdigit()]
+want = sum(1 for x in xs if 384229.5 <= x <= 384231.5 and not (384230.6 <= x <= 384230.7))
+assert d["n"] == want, (d["n"], want)
+PY
+
 # a fit that cannot converge in one iteration: exit 1, and the status says so
 expect_code 1 "$CS_BIN" fit "$S" --model lorentz+lorentz --max-iter 1 --json "$TMP/n.json"
 python3 -c "import json,sys; d=json.load(open(sys.argv[1]))['fits'][0]; assert d['status'] != 'converged', d['status']" "$TMP/n.json" && ok || bad "not-converged status"
