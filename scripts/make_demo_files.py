@@ -46,7 +46,9 @@ rate = 500e6
 nrec = 8192
 lo_hz = ref_hz - 250e6               # local oscillator below the line
 burst = dict(t0=1.0e-6, tau=40e-9, f=ref_hz + broad['center'] - lo_hz, amp=1.0)
-tail = dict(t0=1.2e-6, gamma=2 * math.pi * narrow['fwhm'] / 4, f=ref_hz + narrow['center'] - lo_hz, amp=0.25)
+# tail: intensity decay rate Gamma = 2 pi x 1.5 MHz (line FWHM 1.5 MHz); the amplitude decays at Gamma/2
+tail_fwhm = 1.5e6
+tail = dict(t0=1.1e-6, gamma=math.pi * tail_fwhm, f=ref_hz + narrow['center'] - lo_hz, amp=0.3)
 lines = [
     "# synthetic = yes: invented scenario, not a measurement",
     "# scenario = heterodyne record of a superradiant burst and its tail (invented)",
@@ -56,6 +58,8 @@ lines = [
     "# reference = %.10f GHz" % (ref_hz / 1e9),
     "# true_burst_offset = %.6g MHz" % (burst['f'] / 1e6),
     "# true_tail_offset = %.6g MHz" % (tail['f'] / 1e6),
+    "# true_tail_fwhm = %.6g MHz" % (tail_fwhm / 1e6),
+    "# true_burst_tau = %.6g ns" % (burst['tau'] * 1e9),
     "time_us,i,q",
 ]
 for k in range(nrec):

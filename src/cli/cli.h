@@ -31,6 +31,8 @@ int cmd_info(int argc, char **argv);
 extern const char *const cmd_info_usage[];
 int cmd_fit(int argc, char **argv);
 extern const char *const cmd_fit_usage[];
+int cmd_gate(int argc, char **argv);
+extern const char *const cmd_gate_usage[];
 
 /* Print a command's usage chunks to f. */
 void cli_print_usage(const cli_command *c, FILE *f);

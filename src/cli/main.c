@@ -13,6 +13,7 @@ static const cli_command commands[] = {
     {"info", cmd_info, "describe files: kind, points, axis range and step, units, metadata, noise",
      cmd_info_usage},
     {"fit", cmd_fit, "fit line profiles plus a baseline to spectra, with standard errors", cmd_fit_usage},
+    {"gate", cmd_gate, "find the burst in time records and compute gated spectra of its eras", cmd_gate_usage},
 };
 static const size_t ncommands = sizeof commands / sizeof commands[0];
 
