@@ -4,6 +4,7 @@
 #include <collshift/fit.h>
 #include <collshift/gate.h>
 #include <collshift/model.h>
+#include <collshift/pencil.h>
 #include <collshift/report.h>
 
 #include <errno.h>
@@ -355,6 +356,58 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
     return o;
 }
 
+/* Matrix-pencil estimate of the damped exponentials in a gate (time domain, no window): an
+ * independent cross-check of the Fourier fits. Returns a JSON array of components. */
+static json_t *pencil_gate(const cs_record *rec, const cs_gate *g, const cs_burst *b, double lo_hz, int quiet)
+{
+    json_t *a = json_array();
+    size_t first, count;
+    cs_error err;
+    if (cs_gate_samples(g, rec, &first, &count, &err) != CS_OK)
+        return a;
+    /* only the stretch with signal: samples after the envelope has faded into the noise add
+       nothing but noise to the pencil's data matrix */
+    if (b->status == CS_BURST_FOUND && isfinite(b->fade_s)) {
+        double tf = (b->fade_s - rec->t0_s) / rec->dt_s;
+        if (tf > (double)first && tf < (double)(first + count))
+            count = (size_t)tf - first + 1;
+    }
+    if (count < 16)
+        return a;
+    cs_pencil_parameters pp = cs_pencil_default_parameters();
+    cs_pencil_result pr;
+    cs_pencil_result_init(&pr);
+    const double *x = rec->data + (rec->is_complex ? 2 * first : first);
+    int rc = cs_pencil_estimate(x, count, rec->is_complex, rec->dt_s, &pp, &pr, &err);
+    if (rc == CS_OK || rc == CS_ENOCONV) {
+        char b1[96], b2[96];
+        size_t shown = 0;
+        for (size_t k = 0; k < pr.order && shown < 3; k++) {
+            const cs_pencil_component *c = &pr.comp[k];
+            if (!rec->is_complex && c->freq_hz < 0)
+                continue;  /* a real record's components come in +- pairs: keep the positive one */
+            if (!(c->gamma_per_s > 0))
+                continue;  /* a growing exponential is part of a burst's shape, not a line */
+            json_t *o = json_object();
+            json_object_set_new(o, "center_hz", jnum(c->freq_hz + lo_hz));
+            json_object_set_new(o, "center_hz_err", jnum(c->freq_hz_err));
+            json_object_set_new(o, "fwhm_hz", jnum(c->fwhm_hz));
+            json_object_set_new(o, "fwhm_hz_err", jnum(c->fwhm_hz_err));
+            json_object_set_new(o, "gamma_per_s", jnum(c->gamma_per_s));
+            json_object_set_new(o, "gamma_per_s_err", jnum(c->gamma_per_s_err));
+            json_object_set_new(o, "amplitude", jnum(c->amplitude));
+            json_array_append_new(a, o);
+            if (!quiet)
+                printf("      pencil %zu: center %s, fwhm %s\n", shown + 1,
+                       cs_format_value_err(c->freq_hz + lo_hz, c->freq_hz_err, CS_DIM_FREQUENCY, b1, sizeof b1),
+                       cs_format_value_err(c->fwhm_hz, c->fwhm_hz_err, CS_DIM_FREQUENCY, b2, sizeof b2));
+            shown++;
+        }
+    }
+    cs_pencil_result_release(&pr);
+    return a;
+}
+
 /* Analyse one file; returns its JSON object. */
 static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opts *go, const cs_load_options *lo,
                          int several, int *worst)
@@ -535,6 +588,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
         }
         if (go->fit)
             json_object_set_new(o, "fit", fit_gated(go->fit, gs, go->quiet, worst));
+        json_object_set_new(o, "pencil", pencil_gate(rec, &gates[k], &burst, lo_hz, go->quiet));
         json_array_append_new(jg, o);
         cs_gated_spectrum_free(gs);
     }
