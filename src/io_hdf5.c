@@ -1,4 +1,4 @@
-/* HDF5 files: picking a dataset, reading it into records or a spectrum, attributes as metadata. */
+/* HDF5 files: a dataset read into records or a spectrum (io_hdf5_tree.c: choice, attributes). */
 /*
  * How lab HDF5 files are read
  * ---------------------------
@@ -34,6 +34,8 @@
  */
 #include <collshift/io.h>
 
+#include "io_hdf5_impl.h"
+
 #include <hdf5.h>
 
 #include <ctype.h>
@@ -46,423 +48,6 @@
 #include <strings.h>
 
 static pthread_mutex_t h5_lock = PTHREAD_MUTEX_INITIALIZER;
-
-#define H5_MAX_DEPTH 16      /* group nesting followed when listing datasets */
-#define H5_MAX_LISTED 24     /* dataset names shown in a message */
-
-static char *dup_s(const char *s)
-{
-    size_t n = strlen(s) + 1;
-    char *d = malloc(n);
-    if (d)
-        memcpy(d, s, n);
-    return d;
-}
-
-/* ---------------------------------------------------------------- listing datasets */
-
-typedef struct name_list {
-    char text[360];   /* "/a, /b/c, ..." */
-    size_t count;     /* datasets seen */
-    size_t shown;
-    char first[512];  /* path of the first dataset seen */
-    const char *exclude;
-} name_list;
-
-static void list_add(name_list *l, const char *path)
-{
-    if (l->exclude && strcmp(path, l->exclude) == 0)
-        return;
-    if (l->count == 0)
-        snprintf(l->first, sizeof l->first, "%s", path);
-    l->count++;
-    size_t used = strlen(l->text);
-    if (l->shown < H5_MAX_LISTED && used + strlen(path) + 8 < sizeof l->text) {
-        snprintf(l->text + used, sizeof l->text - used, "%s%s", used ? ", " : "", path);
-        l->shown++;
-    }
-}
-
-typedef struct visit {
-    name_list *list;
-    char prefix[256];
-    int depth;
-    int recurse;
-} visit;
-
-static herr_t visit_link(hid_t group, const char *name, const H5L_info_t *info, void *data)
-{
-    (void)info;
-    visit *v = data;
-    char path[sizeof v->prefix + 64];
-    const char *parent = strcmp(v->prefix, "/") == 0 ? "" : v->prefix;
-    int len = snprintf(path, sizeof path, "%s/%s", parent, name);
-    if (len < 0 || (size_t)len >= sizeof v->prefix)
-        return 0; /* a path this long is not listed */
-    hid_t obj = H5Oopen(group, name, H5P_DEFAULT);
-    if (obj < 0)
-        return 0; /* dangling or external link: not listed */
-    H5I_type_t t = H5Iget_type(obj);
-    if (t == H5I_DATASET) {
-        list_add(v->list, path);
-    } else if (t == H5I_GROUP && v->recurse && v->depth < H5_MAX_DEPTH) {
-        visit sub = *v;
-        memcpy(sub.prefix, path, (size_t)len + 1);
-        sub.depth++;
-        H5Literate(obj, H5_INDEX_NAME, H5_ITER_INC, NULL, visit_link, &sub);
-    }
-    H5Oclose(obj);
-    return 0;
-}
-
-static void list_datasets(hid_t file, int recurse, name_list *l)
-{
-    visit v;
-    memset(&v, 0, sizeof v);
-    v.list = l;
-    snprintf(v.prefix, sizeof v.prefix, "/");
-    v.recurse = recurse;
-    H5Literate(file, H5_INDEX_NAME, H5_ITER_INC, NULL, visit_link, &v);
-}
-
-/* 1 when every component of path exists as a link (H5Lexists needs the parents to exist). */
-static int path_exists(hid_t file, const char *path)
-{
-    char buf[512];
-    snprintf(buf, sizeof buf, "%s", path);
-    size_t n = strlen(buf);
-    if (n == 0 || n >= sizeof buf - 1)
-        return 0;
-    for (size_t i = 1; i <= n; i++) {
-        if (buf[i] == '/' || buf[i] == '\0') {
-            char c = buf[i];
-            buf[i] = '\0';
-            htri_t e = H5Lexists(file, buf, H5P_DEFAULT);
-            buf[i] = c;
-            if (e <= 0)
-                return 0;
-        }
-    }
-    return 1;
-}
-
-/* Normalise a user path to start with '/' and have no trailing '/'. */
-static void norm_path(const char *in, char *out, size_t n)
-{
-    snprintf(out, n, "%s%s", in[0] == '/' ? "" : "/", in);
-    size_t len = strlen(out);
-    while (len > 1 && out[len - 1] == '/')
-        out[--len] = '\0';
-}
-
-/* Pick the dataset: `want` when given (must exist and be a dataset), else the only top-level one
- * other than `exclude`. */
-static int choose_dataset(hid_t file, const char *path, const char *want, const char *exclude,
-                          char *chosen, size_t n, cs_error *err)
-{
-    if (want && *want) {
-        norm_path(want, chosen, n);
-        int is_dataset = 0;
-        if (path_exists(file, chosen)) {
-            hid_t obj = H5Oopen(file, chosen, H5P_DEFAULT);
-            if (obj >= 0) {
-                is_dataset = H5Iget_type(obj) == H5I_DATASET;
-                H5Oclose(obj);
-            }
-            if (!is_dataset) {
-                name_list l;
-                memset(&l, 0, sizeof l);
-                list_datasets(file, 1, &l);
-                return cs_error_set(err, CS_EINVAL, path, -1, -1,
-                                    "'%s' is not a dataset (a group?); datasets in the file: %s",
-                                    chosen, l.count ? l.text : "none");
-            }
-            return CS_OK;
-        }
-        name_list l;
-        memset(&l, 0, sizeof l);
-        list_datasets(file, 1, &l);
-        return cs_error_set(err, CS_EINVAL, path, -1, -1,
-                            "no dataset '%s' in the file; datasets found: %s%s", chosen,
-                            l.count ? l.text : "none", l.count > l.shown ? ", ..." : "");
-    }
-    name_list top;
-    memset(&top, 0, sizeof top);
-    top.exclude = exclude;
-    list_datasets(file, 0, &top);
-    if (top.count == 1) {
-        snprintf(chosen, n, "%s", top.first);
-        return CS_OK;
-    }
-    name_list all;
-    memset(&all, 0, sizeof all);
-    all.exclude = exclude;
-    list_datasets(file, 1, &all);
-    if (top.count == 0)
-        return cs_error_set(err, CS_EINVAL, path, -1, -1,
-                            "no dataset at the top level of the file; choose one with --dataset "
-                            "from: %s%s",
-                            all.count ? all.text : "none (the file holds no datasets)",
-                            all.count > all.shown ? ", ..." : "");
-    return cs_error_set(err, CS_EINVAL, path, -1, -1,
-                        "the file holds %zu datasets; choose one with --dataset: %s%s", all.count,
-                        all.text, all.count > all.shown ? ", ..." : "");
-}
-
-/* ---------------------------------------------------------------- attributes */
-
-enum { AT_INT = 1, AT_FLOAT, AT_TEXT };
-
-typedef struct h5attr {
-    char *name;
-    char *text;        /* AT_TEXT: the string; otherwise the number as text */
-    double num;        /* AT_INT / AT_FLOAT */
-    int kind;
-    int level;         /* 0 = root ... deepest = the dataset */
-    char owner[256];   /* object path, for messages */
-} h5attr;
-
-typedef struct h5attrs {
-    h5attr *a;
-    size_t n, cap;
-    int level;
-    const char *owner;
-    int oom;
-} h5attrs;
-
-static void attrs_release(h5attrs *s)
-{
-    for (size_t i = 0; i < s->n; i++) {
-        free(s->a[i].name);
-        free(s->a[i].text);
-    }
-    free(s->a);
-    memset(s, 0, sizeof *s);
-}
-
-/* Read a string attribute (fixed or variable length) of one element. */
-static char *attr_string(hid_t attr, hid_t ftype)
-{
-    char *out = NULL;
-    if (H5Tis_variable_str(ftype) > 0) {
-        hid_t mt = H5Tcopy(H5T_C_S1);
-        char *s = NULL;
-        if (mt >= 0 && H5Tset_size(mt, H5T_VARIABLE) >= 0 &&
-            H5Tset_cset(mt, H5Tget_cset(ftype)) >= 0 && H5Aread(attr, mt, &s) >= 0 && s) {
-            out = dup_s(s);
-            H5free_memory(s);
-        }
-        if (mt >= 0)
-            H5Tclose(mt);
-        return out;
-    }
-    size_t sz = H5Tget_size(ftype);
-    if (sz == 0 || sz > 65536)
-        return NULL;
-    char *buf = calloc(sz + 1, 1);
-    hid_t mt = H5Tcopy(ftype);
-    if (buf && mt >= 0 && H5Aread(attr, mt, buf) >= 0) {
-        size_t len = strlen(buf);
-        while (len && (buf[len - 1] == ' '))
-            buf[--len] = '\0';
-        out = buf;
-        buf = NULL;
-    }
-    if (mt >= 0)
-        H5Tclose(mt);
-    free(buf);
-    return out;
-}
-
-static herr_t attr_visit(hid_t loc, const char *name, const H5A_info_t *info, void *data)
-{
-    (void)info;
-    h5attrs *s = data;
-    hid_t attr = H5Aopen(loc, name, H5P_DEFAULT);
-    if (attr < 0)
-        return 0;
-    hid_t space = H5Aget_space(attr), ftype = H5Aget_type(attr);
-    h5attr a;
-    memset(&a, 0, sizeof a);
-    char num[64];
-    if (space >= 0 && ftype >= 0 && H5Sget_simple_extent_npoints(space) == 1) {
-        H5T_class_t cls = H5Tget_class(ftype);
-        if (cls == H5T_INTEGER) {
-            if (H5Tget_sign(ftype) == H5T_SGN_NONE) {
-                unsigned long long u;
-                if (H5Aread(attr, H5T_NATIVE_ULLONG, &u) >= 0) {
-                    a.kind = AT_INT;
-                    a.num = (double)u;
-                    snprintf(num, sizeof num, "%llu", u);
-                }
-            } else {
-                long long i;
-                if (H5Aread(attr, H5T_NATIVE_LLONG, &i) >= 0) {
-                    a.kind = AT_INT;
-                    a.num = (double)i;
-                    snprintf(num, sizeof num, "%lld", i);
-                }
-            }
-            if (a.kind)
-                a.text = dup_s(num);
-        } else if (cls == H5T_FLOAT) {
-            double d;
-            if (H5Aread(attr, H5T_NATIVE_DOUBLE, &d) >= 0) {
-                a.kind = AT_FLOAT;
-                a.num = d;
-                snprintf(num, sizeof num, "%.17g", d);
-                a.text = dup_s(num);
-            }
-        } else if (cls == H5T_STRING) {
-            a.text = attr_string(attr, ftype);
-            a.kind = a.text ? AT_TEXT : 0;
-        } else if (cls == H5T_ENUM) { /* h5py stores Python bools as an enum FALSE/TRUE */
-            hid_t nt = H5Tget_native_type(ftype, H5T_DIR_ASCEND);
-            unsigned char val[16];
-            char ename[64];
-            if (nt >= 0 && H5Tget_size(nt) <= sizeof val && H5Aread(attr, nt, val) >= 0 &&
-                H5Tenum_nameof(nt, val, ename, sizeof ename) >= 0) {
-                a.text = dup_s(ename);
-                a.kind = a.text ? AT_TEXT : 0;
-            }
-            if (nt >= 0)
-                H5Tclose(nt);
-        }
-    }
-    if (ftype >= 0)
-        H5Tclose(ftype);
-    if (space >= 0)
-        H5Sclose(space);
-    H5Aclose(attr);
-    if (!a.kind) {
-        free(a.text);
-        return 0; /* arrays, compounds, references: not metadata */
-    }
-    a.name = dup_s(name);
-    a.level = s->level;
-    snprintf(a.owner, sizeof a.owner, "%s", s->owner);
-    if (a.name && s->n == s->cap) {
-        size_t cap = s->cap ? 2 * s->cap : 16;
-        h5attr *na = realloc(s->a, cap * sizeof *na);
-        if (na) {
-            s->a = na;
-            s->cap = cap;
-        }
-    }
-    if (!a.name || !a.text || s->n == s->cap) {
-        free(a.name);
-        free(a.text);
-        s->oom = 1;
-        return -1; /* stops the iteration */
-    }
-    s->a[s->n++] = a;
-    return 0;
-}
-
-/* Gather the attributes of the root, each parent group and the object at `objpath`, in order. */
-static int gather_attrs(hid_t file, const char *objpath, h5attrs *s)
-{
-    char prefix[512];
-    size_t n = strlen(objpath);
-    int level = 0;
-    for (size_t i = 0; i <= n; i++) {
-        if (i != 0 && objpath[i] != '/' && objpath[i] != '\0')
-            continue;
-        if (i == 0)
-            snprintf(prefix, sizeof prefix, "/");
-        else
-            snprintf(prefix, sizeof prefix, "%.*s", (int)i, objpath);
-        if (i == n && n == 1)
-            break; /* objpath is "/" itself, already done */
-        hid_t obj = H5Oopen(file, prefix, H5P_DEFAULT);
-        if (obj < 0)
-            continue;
-        s->level = level++;
-        s->owner = prefix;
-        H5Aiterate2(obj, H5_INDEX_NAME, H5_ITER_INC, NULL, attr_visit, s);
-        H5Oclose(obj);
-        if (s->oom)
-            return CS_ENOMEM;
-    }
-    return CS_OK;
-}
-
-/* The most specific attribute with this name (case-insensitive), or NULL. */
-static const h5attr *attr_find(const h5attrs *s, const char *name)
-{
-    for (size_t i = s->n; i-- > 0;)
-        if (strcasecmp(s->a[i].name, name) == 0)
-            return &s->a[i];
-    return NULL;
-}
-
-/* The most specific of several names: the deepest level wins, then the order of names. */
-static const h5attr *attr_find_any(const h5attrs *s, const char *const *names, size_t k)
-{
-    const h5attr *best = NULL;
-    for (size_t j = 0; j < k; j++) {
-        const h5attr *a = attr_find(s, names[j]);
-        if (a && (!best || a->level > best->level))
-            best = a;
-    }
-    return best;
-}
-
-static int attr_truthy(const h5attr *a)
-{
-    if (!a)
-        return 0;
-    if (a->kind != AT_TEXT)
-        return a->num != 0.0;
-    return strcasecmp(a->text, "true") == 0 || strcasecmp(a->text, "yes") == 0 ||
-           strcmp(a->text, "1") == 0;
-}
-
-/* A positive quantity from an attribute: numbers are in `unit`, strings may carry their own. */
-static int attr_quantity(const h5attr *a, cs_dim dim, const char *unit, const char *path,
-                         double *si, cs_error *err)
-{
-    double v = 0.0;
-    if (a->kind == AT_TEXT) {
-        cs_error e2;
-        cs_error_clear(&e2);
-        int rc = cs_quantity_parse(a->text, dim, unit, &v, NULL, NULL, &e2);
-        if (rc != CS_OK)
-            return cs_error_set(err, rc == CS_EUNIT ? CS_EUNIT : CS_EDATA, path, -1, -1,
-                                "attribute '%s' of '%s' = '%s' is not a %s: %s", a->name, a->owner,
-                                a->text, cs_dim_name(dim), e2.msg);
-    } else {
-        const cs_unit *u = cs_unit_find(unit);
-        v = u ? cs_unit_to_si(u, a->num) : a->num;
-    }
-    if (!(v > 0.0) || !isfinite(v))
-        return cs_error_set(err, CS_EDATA, path, -1, -1,
-                            "attribute '%s' of '%s' = %s must be a positive %s", a->name, a->owner,
-                            a->text, cs_dim_name(dim));
-    *si = v;
-    return CS_OK;
-}
-
-static int is_reserved(const char *name)
-{
-    static const char *const r[] = {"sample_rate", "sample_interval", "dt", "t0",
-                                    "iq", "unit", "units"};
-    for (size_t i = 0; i < sizeof r / sizeof r[0]; i++)
-        if (strcasecmp(name, r[i]) == 0)
-            return 1;
-    return 0;
-}
-
-static int attrs_to_meta(const h5attrs *s, cs_meta *m)
-{
-    for (size_t i = 0; i < s->n; i++) {
-        if (is_reserved(s->a[i].name))
-            continue;
-        if (cs_meta_set_text(m, s->a[i].name, s->a[i].text) != CS_OK)
-            return CS_ENOMEM;
-    }
-    return CS_OK;
-}
 
 /* ---------------------------------------------------------------- dataset types */
 
@@ -564,15 +149,6 @@ static int read_slab(hid_t dset, hid_t memtype, const hsize_t *start, const hsiz
     return ok;
 }
 
-/* Index of the first non-finite value, or n. */
-static size_t first_bad(const double *v, size_t n)
-{
-    for (size_t i = 0; i < n; i++)
-        if (!isfinite(v[i]))
-            return i;
-    return n;
-}
-
 /* ---------------------------------------------------------------- records */
 
 typedef struct h5ctx {
@@ -601,12 +177,12 @@ static int load_records(h5ctx *c, const char *dname)
     rc = inspect(dset, path, dname, &sh, err);
     if (rc != CS_OK)
         goto done;
-    if ((rc = gather_attrs(c->file, dname, &at)) != CS_OK) {
+    if ((rc = io_hdf5_gather_attrs(c->file, dname, &at)) != CS_OK) {
         rc = cs_error_set(err, CS_ENOMEM, path, -1, -1, "out of memory");
         goto done;
     }
     /* layout: shots x samples, complex or not */
-    int iq = !sh.cplx && attr_truthy(attr_find(&at, "iq"));
+    int iq = !sh.cplx && io_hdf5_attr_truthy(io_hdf5_attr_find(&at, "iq"));
     int cplx = sh.cplx;
     hsize_t shots, per;
     int nd = sh.ndims - (iq ? 1 : 0); /* dimensions apart from the I/Q pair */
@@ -653,13 +229,14 @@ static int load_records(h5ctx *c, const char *dname)
     /* sample rate and t0 */
     static const char *const rate_names[] = {"sample_rate"};
     static const char *const dt_names[] = {"sample_interval", "dt"};
-    const h5attr *ar = attr_find_any(&at, rate_names, 1), *ad = attr_find_any(&at, dt_names, 2);
+    const h5attr *ar = io_hdf5_attr_find_any(&at, rate_names, 1);
+    const h5attr *ad = io_hdf5_attr_find_any(&at, dt_names, 2);
     const h5attr *src = ar && (!ad || ar->level >= ad->level) ? ar : ad;
     double rate = 0.0;
     if (src) {
         double v = 0.0;
-        rc = attr_quantity(src, src == ar ? CS_DIM_FREQUENCY : CS_DIM_TIME, src == ar ? "Hz" : "s",
-                           path, &v, err);
+        rc = io_hdf5_attr_quantity(src, src == ar ? CS_DIM_FREQUENCY : CS_DIM_TIME,
+                                   src == ar ? "Hz" : "s", path, &v, err);
         if (rc != CS_OK)
             goto done;
         rate = src == ar ? v : 1.0 / v;
@@ -680,7 +257,7 @@ static int load_records(h5ctx *c, const char *dname)
         goto done;
     }
     double t0 = o->t0_s;
-    const h5attr *a0 = attr_find(&at, "t0");
+    const h5attr *a0 = io_hdf5_attr_find(&at, "t0");
     if (a0) {
         if (a0->kind == AT_TEXT) {
             cs_error e2;
@@ -713,7 +290,7 @@ static int load_records(h5ctx *c, const char *dname)
         r->shot = s;
         r->t0_s = t0;
         r->dt_s = 1.0 / rate;
-        if (!(r->source = dup_s(path)) || attrs_to_meta(&at, &r->meta) != CS_OK)
+        if (!(r->source = io_strdup(path)) || io_hdf5_attrs_to_meta(&at, &r->meta) != CS_OK)
             goto nomem;
         int ok;
         if (nd == 1) {
@@ -728,7 +305,7 @@ static int load_records(h5ctx *c, const char *dname)
                               dname);
             goto done;
         }
-        size_t bad = first_bad(r->data, (size_t)per * comps);
+        size_t bad = io_first_nonfinite(r->data, (size_t)per * comps);
         if (bad < (size_t)per * comps) {
             rc = cs_error_set(err, CS_EDATA, path, -1, -1,
                               "dataset '%s': sample %zu%s of shot %zu is %s", dname, bad / comps,
@@ -755,12 +332,8 @@ static int load_records(h5ctx *c, const char *dname)
 nomem:
     rc = cs_error_set(err, CS_ENOMEM, path, -1, -1, "out of memory");
 done:
-    if (recs) {
-        for (size_t s = 0; s < nshots; s++)
-            cs_record_free(recs[s]);
-        free(recs);
-    }
-    attrs_release(&at);
+    io_records_free(recs, nshots);
+    io_hdf5_attrs_release(&at);
     if (sh.memtype >= 0)
         H5Tclose(sh.memtype);
     H5Dclose(dset);
@@ -840,8 +413,8 @@ static int load_spectrum(h5ctx *c, const char *yname, const char *xname)
                           "the %zu needed", yname, n, min_points);
         goto done;
     }
-    if (gather_attrs(c->file, yname, &at) != CS_OK ||
-        (xname && gather_attrs(c->file, xname, &ax) != CS_OK))
+    if (io_hdf5_gather_attrs(c->file, yname, &at) != CS_OK ||
+        (xname && io_hdf5_gather_attrs(c->file, xname, &ax) != CS_OK))
         goto nomem;
     /* the axis unit: option, else the x dataset's attribute, else Hz */
     const char *unit = o->x_unit && *o->x_unit ? o->x_unit : NULL;
@@ -886,7 +459,7 @@ static int load_spectrum(h5ctx *c, const char *yname, const char *xname)
         }
     }
     for (size_t k = 0; k < cols; k++) {
-        size_t bad = first_bad(colv[k], n);
+        size_t bad = io_first_nonfinite(colv[k], n);
         if (bad < n) {
             rc = cs_error_set(err, CS_EDATA, path, -1, -1, "%s at point %zu of '%s' is %s",
                               names[k], bad, k == 0 && xname ? xname : yname,
@@ -894,47 +467,24 @@ static int load_spectrum(h5ctx *c, const char *yname, const char *xname)
             goto done;
         }
     }
-    if (sp->sigma)
-        for (size_t i = 0; i < n; i++)
-            if (!(sp->sigma[i] > 0.0)) {
-                rc = cs_error_set(err, CS_EDATA, path, -1, -1,
-                                  "sigma at point %zu of '%s' is %g: it must be positive", i, yname,
-                                  sp->sigma[i]);
-                goto done;
-            }
-    sp->conv.air = o->air;
-    sp->conv.y_is_density = o->y_is_density;
-    rc = cs_axis_to_hz(sp->freq_hz, sp->y, sp->sigma, n, u, &sp->conv, err);
-    if (rc != CS_OK) {
-        if (err)
-            snprintf(err->file, sizeof err->file, "%s", path);
+    io_spectrum_fault fault = 0;
+    size_t i = 0;
+    rc = io_spectrum_finish(sp, u, assumed, o, path, &fault, &i, err);
+    if (rc == CS_EDATA && fault == IO_SPECTRUM_SIGMA)
+        rc = cs_error_set(err, CS_EDATA, path, -1, -1,
+                          "sigma at point %zu of '%s' is %g: it must be positive", i, yname,
+                          sp->sigma[i]);
+    else if (rc == CS_EDATA && fault)
+        rc = cs_error_set(err, CS_EDATA, path, -1, -1,
+                          fault == IO_SPECTRUM_REPEAT
+                              ? "x at point %zu of '%s' repeats the previous value"
+                              : "x is not monotonic: point %zu of '%s' goes back",
+                          i, xname ? xname : yname);
+    if (rc != CS_OK)
         goto done;
-    }
-    double dir = sp->freq_hz[1] > sp->freq_hz[0] ? 1.0 : -1.0;
-    for (size_t i = 1; i < n; i++) {
-        double d = sp->freq_hz[i] - sp->freq_hz[i - 1];
-        if (!(d * dir > 0.0)) {
-            rc = cs_error_set(err, CS_EDATA, path, -1, -1,
-                              d == 0.0 ? "x at point %zu of '%s' repeats the previous value"
-                                       : "x is not monotonic: point %zu of '%s' goes back",
-                              i, xname ? xname : yname);
-            goto done;
-        }
-    }
-    if (dir < 0.0) {
-        for (size_t i = 0, j = n - 1; i < j; i++, j--)
-            for (size_t k = 0; k < cols; k++) {
-                double t = colv[k][i];
-                colv[k][i] = colv[k][j];
-                colv[k][j] = t;
-            }
-        sp->conv.reversed = 1;
-    }
-    snprintf(sp->x_unit, sizeof sp->x_unit, "%s", u->name);
-    sp->x_unit_assumed = assumed;
     const char *base = strrchr(yname, '/');
     snprintf(sp->y_name, sizeof sp->y_name, "%s", base ? base + 1 : yname);
-    if (!(sp->source = dup_s(path)) || attrs_to_meta(&at, &sp->meta) != CS_OK)
+    if (!(sp->source = io_strdup(path)) || io_hdf5_attrs_to_meta(&at, &sp->meta) != CS_OK)
         goto nomem;
     c->out->kind = CS_KIND_SPECTRUM;
     c->out->spectrum = sp;
@@ -945,25 +495,15 @@ static int load_spectrum(h5ctx *c, const char *yname, const char *xname)
     else
         cs_loaded_note(c->out, "hdf5 spectrum: x, y%s from the columns of '%s', %zu points",
                        cols == 3 ? ", sigma" : "", yname, n);
-    if (assumed)
-        cs_loaded_note(c->out, "no axis unit given: x taken as Hz");
-    else if (u->dim != CS_DIM_FREQUENCY || u->scale != 1.0)
-        cs_loaded_note(c->out, "axis in %s converted to Hz%s", u->name,
-                       u->dim != CS_DIM_LENGTH ? ""
-                       : o->air                ? " (air wavelengths)"
-                                               : " (vacuum)");
-    if (c->out->spectrum->conv.jacobian_applied)
-        cs_loaded_note(c->out, "Jacobian applied to y");
-    if (c->out->spectrum->conv.reversed)
-        cs_loaded_note(c->out, "axis reversed to ascending frequency");
+    io_spectrum_notes(c->out, c->out->spectrum, u, assumed, o->air, 0);
     rc = CS_OK;
     goto done;
 nomem:
     rc = cs_error_set(err, CS_ENOMEM, path, -1, -1, "out of memory");
 done:
     cs_spectrum_free(sp);
-    attrs_release(&at);
-    attrs_release(&ax);
+    io_hdf5_attrs_release(&at);
+    io_hdf5_attrs_release(&ax);
     if (sy.memtype >= 0)
         H5Tclose(sy.memtype);
     if (sx.memtype >= 0)
@@ -996,16 +536,16 @@ static int load_locked(const char *path, const cs_load_options *o, cs_loaded *ou
     char yname[512], xname[512];
     int spectrum = (o->x_dataset && *o->x_dataset) || o->kind == CS_KIND_SPECTRUM;
     if (o->x_dataset && *o->x_dataset) {
-        rc = choose_dataset(file, path, o->x_dataset, NULL, xname, sizeof xname, err);
+        rc = io_hdf5_choose_dataset(file, path, o->x_dataset, NULL, xname, sizeof xname, err);
         if (rc == CS_OK)
-            rc = choose_dataset(file, path, o->dataset, xname, yname, sizeof yname, err);
+            rc = io_hdf5_choose_dataset(file, path, o->dataset, xname, yname, sizeof yname, err);
         if (rc == CS_OK && strcmp(xname, yname) == 0)
             rc = cs_error_set(err, CS_EINVAL, path, -1, -1,
                               "the x dataset and the y dataset are both '%s'", xname);
         if (rc == CS_OK)
             rc = load_spectrum(&c, yname, xname);
     } else {
-        rc = choose_dataset(file, path, o->dataset, NULL, yname, sizeof yname, err);
+        rc = io_hdf5_choose_dataset(file, path, o->dataset, NULL, yname, sizeof yname, err);
         if (rc == CS_OK)
             rc = spectrum ? load_spectrum(&c, yname, NULL) : load_records(&c, yname);
     }

@@ -10,7 +10,8 @@
  *     the layout of C99 `float complex` / `double complex` arrays and of most SDR and digitizer
  *     streams).
  *   - Every multi-byte value is little-endian unless o->big_endian is set. Byte order is decoded
- *     explicitly from the bytes, so the result does not depend on the host's byte order.
+ *     explicitly from the bytes (io_decode.c, shared with the .npy loader), so the result does not
+ *     depend on the host's byte order.
  *   - With o->records = N > 1 the data are N shots of equal length, one after the other.
  *   - The file carries no time axis: the user gives the sample rate (required) and t0.
  *
@@ -25,6 +26,8 @@
  * for NaN/Inf as it is decoded, and a bad one is reported with its byte offset in the file.
  */
 #include <collshift/io.h>
+
+#include "io_internal.h"
 
 #include <errno.h>
 #include <math.h>
@@ -63,99 +66,6 @@ static int raw_layout_of(cs_raw_type t, raw_layout *L)
     }
 }
 
-static int host_is_little_endian(void)
-{
-    const uint16_t one = 1;
-    unsigned char b;
-    memcpy(&b, &one, 1);
-    return b == 1;
-}
-
-/* ---------------------------------------------------------------- decoding */
-
-static uint16_t rd16(const unsigned char *p, int big)
-{
-    return big ? (uint16_t)((unsigned)p[0] << 8 | p[1]) : (uint16_t)(p[0] | (unsigned)p[1] << 8);
-}
-
-static uint32_t rd32(const unsigned char *p, int big)
-{
-    if (big)
-        return (uint32_t)p[0] << 24 | (uint32_t)p[1] << 16 | (uint32_t)p[2] << 8 | p[3];
-    return (uint32_t)p[3] << 24 | (uint32_t)p[2] << 16 | (uint32_t)p[1] << 8 | p[0];
-}
-
-static uint64_t rd64(const unsigned char *p, int big)
-{
-    uint64_t hi = rd32(p + (big ? 0 : 4), big), lo = rd32(p + (big ? 4 : 0), big);
-    return hi << 32 | lo;
-}
-
-static double v_i8(const unsigned char *p, int big)
-{
-    (void)big;
-    int8_t s;
-    memcpy(&s, p, 1);
-    return s;
-}
-
-static double v_i16(const unsigned char *p, int big)
-{
-    uint16_t u = rd16(p, big);
-    int16_t s;
-    memcpy(&s, &u, sizeof s);
-    return s;
-}
-
-static double v_i32(const unsigned char *p, int big)
-{
-    uint32_t u = rd32(p, big);
-    int32_t s;
-    memcpy(&s, &u, sizeof s);
-    return s;
-}
-
-static double v_f32(const unsigned char *p, int big)
-{
-    uint32_t u = rd32(p, big);
-    float f;
-    memcpy(&f, &u, sizeof f);
-    return f;
-}
-
-static double v_f64(const unsigned char *p, int big)
-{
-    uint64_t u = rd64(p, big);
-    double d;
-    memcpy(&d, &u, sizeof d);
-    return d;
-}
-
-/* Decode n scalars of L->scalar bytes from src into dst, multiplied by scale. The exact-width
- * signed types are two's complement by the C standard, so memcpy from the unsigned pattern is
- * well defined. Returns the index of the first non-finite result, or n when all are finite. */
-static size_t raw_decode(const unsigned char *src, size_t n, const raw_layout *L, int big,
-                         double scale, double *dst)
-{
-    size_t i;
-#define RAW_LOOP(FN)                                                        \
-    for (i = 0; i < n; i++) {                                               \
-        double v = FN(src + i * L->scalar, big) * scale;                    \
-        dst[i] = v;                                                         \
-        if (!isfinite(v))                                                   \
-            return i;                                                       \
-    }                                                                       \
-    return n
-    switch (L->scalar * 2 + (size_t)L->is_float) {
-    case 2: RAW_LOOP(v_i8);
-    case 4: RAW_LOOP(v_i16);
-    case 8: RAW_LOOP(v_i32);
-    case 9: RAW_LOOP(v_f32);
-    default: RAW_LOOP(v_f64);
-    }
-#undef RAW_LOOP
-}
-
 /* In place: dst already holds doubles read straight from the file; scale and check them. */
 static size_t raw_scale_inplace(double *dst, size_t n, double scale)
 {
@@ -169,15 +79,6 @@ static size_t raw_scale_inplace(double *dst, size_t n, double scale)
 }
 
 /* ---------------------------------------------------------------- the loader */
-
-static void free_records(cs_record **recs, size_t n)
-{
-    if (!recs)
-        return;
-    for (size_t i = 0; i < n; i++)
-        cs_record_free(recs[i]);
-    free(recs);
-}
 
 static int options_check(const char *path, const cs_load_options *o, cs_error *err)
 {
@@ -234,6 +135,7 @@ int cs_io_raw_load(const char *path, const cs_load_options *o, cs_loaded *out, c
     const size_t comps = L.is_complex ? 2 : 1;
     const size_t ss = L.scalar * comps; /* bytes per sample */
     const int big = o->big_endian != 0;
+    const io_numtype num = {L.scalar, L.is_float ? IO_NUM_FLOAT : IO_NUM_SIGNED, big};
     const size_t max_samples = o->max_samples ? o->max_samples : (size_t)1 << 31;
     const size_t nshots = o->records ? o->records : 1;
 
@@ -300,7 +202,7 @@ int cs_io_raw_load(const char *path, const cs_load_options *o, cs_loaded *out, c
         return rc;
     }
 
-    const int direct = L.is_float && L.scalar == 8 && !big && host_is_little_endian();
+    const int direct = L.is_float && L.scalar == 8 && !big && io_host_is_little_endian();
     unsigned char *buf = NULL;
     cs_record **recs = calloc(nshots, sizeof *recs);
     if (!recs)
@@ -335,7 +237,7 @@ int cs_io_raw_load(const char *path, const cs_load_options *o, cs_loaded *out, c
                 goto fail;
             }
             size_t bad = direct ? raw_scale_inplace(dst, nsc, o->scale)
-                                : raw_decode(buf, nsc, &L, big, o->scale, dst);
+                                : io_decode(buf, nsc, &num, o->scale, dst);
             if (bad < nsc) {
                 rc = bad_value(path, at + (long long)(bad * L.scalar), dst[bad], s,
                                k + bad / comps, (int)(bad % comps), L.is_complex, o->scale, err);
@@ -365,7 +267,7 @@ nomem:
     rc = cs_error_set(err, CS_ENOMEM, path, -1, -1, "out of memory for %zu samples", total);
 fail:
     free(buf);
-    free_records(recs, nshots);
+    io_records_free(recs, nshots);
     fclose(f);
     return rc;
 }

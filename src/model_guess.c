@@ -63,20 +63,18 @@
  * are the fitter's job. Typical cost: a few ms for two lines on 2048 points.
  *
  * Steps 6 and 7 take the amplitudes and baseline from the final linear solution (in transmission
- * T0 times exp(-offset - slope u), refitted by the model's baseline) and store the values. */
+ * T0 times exp(-offset - slope u), refitted by the model's baseline) and store the values.
+ *
+ * This file drives the steps; step 2 lives in model_peaks.c, step 4 in model_refine.c. */
 #include <collshift/model.h>
+
+#include "model_guess_impl.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #define WING_FRACTION 0.12
-#define WIDTH_GRID 24
-#define CENTER_GRID 17
-#define GOLDEN_ITERS 12
-#define MAX_SWEEPS 8
-#define RIDGE 1e-10
-#define OL_EQUAL 1.6376 /* Olivero-Longbothum FWHM / f at f_G = f_L = f: 0.5346 + sqrt(1.2166) */
 
 /* ---------------------------------------------------------------- small helpers */
 
@@ -87,7 +85,7 @@ static int cmp_double(const void *a, const void *b)
 }
 
 /* Median of v[0..n) using scratch (n doubles). */
-static double median(const double *v, size_t n, double *scratch)
+double guess_median(const double *v, size_t n, double *scratch)
 {
     if (n == 0)
         return 0.0;
@@ -96,655 +94,10 @@ static double median(const double *v, size_t n, double *scratch)
     return n % 2 ? scratch[n / 2] : 0.5 * (scratch[n / 2 - 1] + scratch[n / 2]);
 }
 
-/* Solve the symmetric positive definite system G b = r (order k, G row-major, overwritten) by
- * Cholesky. Returns 0, or -1 when G is not positive definite. */
-static int chol_solve(double *G, double *r, size_t k)
-{
-    for (size_t j = 0; j < k; j++) {
-        double d = G[j * k + j];
-        for (size_t l = 0; l < j; l++)
-            d -= G[j * k + l] * G[j * k + l];
-        if (!(d > 0.0))
-            return -1;
-        d = sqrt(d);
-        G[j * k + j] = d;
-        for (size_t i = j + 1; i < k; i++) {
-            double s = G[i * k + j];
-            for (size_t l = 0; l < j; l++)
-                s -= G[i * k + l] * G[j * k + l];
-            G[i * k + j] = s / d;
-        }
-    }
-    for (size_t i = 0; i < k; i++) {
-        double s = r[i];
-        for (size_t l = 0; l < i; l++)
-            s -= G[i * k + l] * r[l];
-        r[i] = s / G[i * k + i];
-    }
-    for (size_t i = k; i-- > 0;) {
-        double s = r[i];
-        for (size_t l = i + 1; l < k; l++)
-            s -= G[l * k + i] * r[l];
-        r[i] = s / G[i * k + i];
-    }
-    return 0;
-}
-
-/* Sum of a[i] b[i], four partial sums side by side. */
-static double dot(const double *a, const double *b, size_t n)
-{
-    double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0;
-    size_t i = 0;
-    for (; i + 4 <= n; i += 4) {
-        s0 += a[i] * b[i];
-        s1 += a[i + 1] * b[i + 1];
-        s2 += a[i + 2] * b[i + 2];
-        s3 += a[i + 3] * b[i + 3];
-    }
-    for (; i < n; i++)
-        s0 += a[i] * b[i];
-    return (s0 + s1) + (s2 + s3);
-}
-
-/* Solve the normal equations of a least-squares problem t ~ sum_u c_u col_u from its raw
- * Gram matrix Gr (nu x nu), right-hand side rhs = C't and tt = t't: columns are scaled to unit
- * norm and a tiny ridge keeps coincident columns solvable. Sign constraints sgn[u] (+1: c_u >= 0,
- * -1: c_u <= 0, 0: free; sgn may be NULL) are kept by dropping, one at a time, the column whose
- * coefficient is most on the wrong side and solving again (a greedy active set in the spirit of
- * Lawson and Hanson's NNLS; dropped coefficients are 0). coef gets c; G is nu*nu scratch.
- * Returns the residual sum of squares t't - c'C't (INFINITY on failure). */
-static double lsq_solve(const double *Gr, const double *rhs, double tt, size_t nu, double *coef,
-                        double *G, const signed char *sgn)
-{
-    double nrm[64], b[64], c[64];
-    size_t act[64];
-    unsigned char on[64];
-    if (nu > 64)
-        return INFINITY;
-    for (size_t u = 0; u < nu; u++) {
-        nrm[u] = Gr[u * nu + u] > 0.0 ? 1.0 / sqrt(Gr[u * nu + u]) : 0.0;
-        on[u] = 1;
-        coef[u] = 0.0;
-    }
-    for (;;) {
-        size_t na = 0;
-        for (size_t u = 0; u < nu; u++)
-            if (on[u])
-                act[na++] = u;
-        for (size_t i = 0; i < na; i++) {
-            size_t u = act[i];
-            for (size_t j = 0; j < na; j++)
-                G[i * na + j] = Gr[u * nu + act[j]] * nrm[u] * nrm[act[j]];
-            G[i * na + i] += RIDGE + (nrm[u] == 0.0 ? 1.0 : 0.0);
-            b[i] = c[i] = rhs[u] * nrm[u];
-        }
-        if (na > 0 && chol_solve(G, c, na) != 0)
-            return INFINITY;
-        size_t worst = nu;
-        double wv = 0.0;
-        for (size_t i = 0; sgn && i < na; i++) {
-            double v = sgn[act[i]] * c[i];
-            if (v < wv) {
-                wv = v;
-                worst = act[i];
-            }
-        }
-        if (worst < nu) {
-            on[worst] = 0;
-            continue;
-        }
-        double ssr = tt;
-        for (size_t i = 0; i < na; i++) {
-            ssr -= c[i] * b[i];
-            coef[act[i]] = c[i] * nrm[act[i]];
-        }
-        if (ssr < 0.0)
-            ssr = 0.0;
-        return isfinite(ssr) ? ssr : INFINITY;
-    }
-}
-
-/* Least squares t ~ sum_u c_u col_u (nu <= 8 columns of n points, col[u*n + i]); coef gets c;
- * returns the residual sum of squares. */
-static double lsq(const double *col, size_t nu, const double *t, size_t n, double *coef)
-{
-    double Gr[64], rhs[8], G[64];
-    if (nu > 8)
-        return INFINITY;
-    for (size_t u = 0; u < nu; u++) {
-        for (size_t v = u; v < nu; v++)
-            Gr[u * nu + v] = Gr[v * nu + u] = dot(col + u * n, col + v * n, n);
-        rhs[u] = dot(col + u * n, t, n);
-    }
-    return lsq_solve(Gr, rhs, dot(t, t, n), nu, coef, G, NULL);
-}
-
-/* ---------------------------------------------------------------- component shapes */
-
-static int is_width(const char *pname)
-{
-    return strncmp(pname, "fwhm", 4) == 0;
-}
-
-static int is_voigt(const cs_profile_type *t)
-{
-    return strcmp(t->name, "voigt") == 0;
-}
-
 /* Expected sharpness class: 1 for Lorentzian-like profiles, 0 for the others. */
 static int sharp_class(const cs_profile_type *t)
 {
     return strcmp(t->name, "lorentz") == 0 || strcmp(t->name, "fano") == 0;
-}
-
-static size_t pindex(const cs_profile_type *t, const char *name)
-{
-    return cs_profile_param_index(t, name);
-}
-
-/* Total FWHM of a component's line (Voigt: Olivero-Longbothum; fano: about its maximum). */
-static double comp_width(const cs_profile_type *t, const double *q)
-{
-    if (is_voigt(t))
-        return cs_profile_voigt_fwhm_ol(q[1], q[2]);
-    size_t iq = pindex(t, "q");
-    for (size_t j = 0; j < t->nparams; j++)
-        if (is_width(t->param_names[j])) {
-            double w = q[j];
-            if (iq != CS_PROFILE_SKIP && q[iq] != 0.0)
-                w *= sqrt(1.0 + 2.0 / (q[iq] * q[iq]));
-            return w;
-        }
-    return NAN;
-}
-
-/* Set the free widths of a component so that its total FWHM is W (free[j]: may be set). */
-static void comp_set_width(const cs_profile_type *t, double *q, const unsigned char *free_,
-                           double W)
-{
-    if (is_voigt(t)) {
-        const double a = 0.5346, b = 0.2166;
-        if (free_[1] && free_[2]) {
-            q[1] = q[2] = W / OL_EQUAL;
-        } else if (free_[2]) { /* f_G given: solve OL for f_L */
-            double fg = q[1], A = a * a - b, disc = a * a * W * W - A * (W * W - fg * fg);
-            double fl = (W > fg && disc >= 0.0) ? (a * W - sqrt(disc)) / A : 0.0;
-            q[2] = fl > 1e-3 * W ? fl : 1e-3 * W;
-        } else if (free_[1]) { /* f_L given: solve OL for f_G */
-            double fl = q[2], d = (W - a * fl) * (W - a * fl) - b * fl * fl;
-            q[1] = d > 1e-6 * W * W ? sqrt(d) : 1e-3 * W;
-        }
-        return;
-    }
-    size_t iq = pindex(t, "q");
-    double f = W;
-    if (iq != CS_PROFILE_SKIP && q[iq] != 0.0)
-        f = W / sqrt(1.0 + 2.0 / (q[iq] * q[iq]));
-    for (size_t j = 0; j < t->nparams; j++)
-        if (is_width(t->param_names[j]) && free_[j])
-            q[j] = f;
-}
-
-/* Shape of a component with unit area (or unit peak when unit_peak) at the n points, into out.
- * A Voigt is replaced by the pseudo-Voigt of Thompson, Cox and Hastings. Returns CS_OK or the
- * profile's check code. */
-static int comp_shape(const cs_profile_type *t, const double *q, const double *x, size_t n,
-                      int unit_peak, double *out)
-{
-    double r[CS_PROFILE_MAX_PARAMS];
-    const cs_profile_type *use = t;
-    memcpy(r, q, t->nparams * sizeof *r);
-    if (is_voigt(t)) {
-        double fv = cs_profile_voigt_fwhm_ol(q[1], q[2]);
-        double e = fv > 0.0 ? q[2] / fv : 0.0;
-        double eta = 1.36603 * e - 0.47719 * e * e + 0.11116 * e * e * e;
-        use = &cs_profile_pvoigt;
-        r[0] = q[0];
-        r[1] = fv;
-        r[2] = eta < 0.0 ? 0.0 : eta > 1.0 ? 1.0 : eta;
-    }
-    size_t ai = cs_profile_area_index(use);
-    r[ai] = 1.0;
-    int rc = cs_profile_check_params(use, r, NULL);
-    if (rc != CS_OK)
-        return rc;
-    double scale = 1.0;
-    if (unit_peak) {
-        double h;
-        rc = cs_profile_quantity(use, CS_PROFILE_HEIGHT, r, &h, NULL);
-        if (rc != CS_OK || !(h > 0.0))
-            return rc != CS_OK ? rc : CS_ERANGE;
-        scale = 1.0 / h;
-    }
-    for (size_t i = 0; i < n; i++)
-        out[i] = 0.0;
-    use->eval(r, x, n, out);
-    if (scale != 1.0)
-        for (size_t i = 0; i < n; i++)
-            out[i] *= scale;
-    return CS_OK;
-}
-
-/* ---------------------------------------------------------------- the refinement workspace */
-
-typedef struct lin_src {
-    size_t param;          /* the linear parameter (area, od, baseline coefficient) */
-    const double *col;     /* its column */
-    long comp;             /* the component whose shape it is, -1 for a baseline column */
-} lin_src;
-
-typedef struct gw {
-    cs_model *m;
-    const double *x;
-    size_t n;
-    int trans;
-    double xr, hs, span, wmin, wmax;
-    const double *tgt;      /* what is fitted: y (SUM) or the weighted absorbance (TRANSMISSION) */
-    const double *wt;       /* row weights (transmission), or NULL */
-    double *p;              /* the parameter vector being refined */
-    unsigned char *guess;   /* 1: the guess sets this parameter */
-    long *uidx;             /* unknown index of a free linear parameter, else -1 */
-    double *shape;          /* ncomp columns of n */
-    double *shape_q;        /* parameters each column was made with (area zeroed) */
-    unsigned char *shape_ok;
-    double *bcol;           /* baseline columns (SUM): u^j, or exp(-rate u) */
-    double bcol_rate;       /* rate bcol[0] was made with (exp) */
-    lin_src *src;
-    size_t nsrc;
-    double *ucol;           /* nu columns of n; the last ndelta are fixed (1 and u/hs) */
-    size_t nu, ndelta;
-    double *tt, *G, *coef;
-    double *pold, *ptry;    /* pattern moves: p before the sweep, p after it */
-    /* cache of the normal equations: raw Gram matrix, C'tt, tt'tt; columns that did not
-     * change since the last call keep their entries */
-    double *Gr, *rhs, ttt;
-    unsigned char *chg;     /* per component: shape changed in this call */
-    unsigned char *udirty;  /* per unknown: column changed */
-    signed char *sgn;       /* per unknown: sign the coefficient must have (0: any) */
-    int cache_ok;
-} gw;
-
-/* Residual sum of squares at the current p; the linear unknowns go to g->coef. Only the
- * columns whose shape changed are rebuilt and only their Gram entries recomputed. */
-static double objective(gw *g)
-{
-    const cs_model *m = g->m;
-    const size_t n = g->n, nu = g->nu, nlin = g->nu - g->ndelta;
-    int all = !g->cache_ok, chg_base = 0, tt_dirty = all;
-    cs_model_apply_ties(m, g->p);
-    for (size_t k = 0; k < m->ncomp; k++) {
-        const cs_profile_type *t = m->comp[k].type;
-        double q[CS_PROFILE_MAX_PARAMS];
-        memcpy(q, g->p + m->comp[k].first, t->nparams * sizeof *q);
-        q[cs_profile_area_index(t)] = 0.0;
-        double *cache = g->shape_q + k * CS_PROFILE_MAX_PARAMS;
-        g->chg[k] = 0;
-        if (g->shape_ok[k] && memcmp(q, cache, t->nparams * sizeof *q) == 0) {
-            if (g->shape_ok[k] == 2)
-                return INFINITY;
-            continue;
-        }
-        memcpy(cache, q, t->nparams * sizeof *q);
-        double *col = g->shape + k * n;
-        int rc = comp_shape(t, q, g->x, n, g->trans, col);
-        for (size_t i = 0; g->wt && rc == CS_OK && i < n; i++)
-            col[i] *= g->wt[i];
-        g->shape_ok[k] = rc == CS_OK ? 1 : 2;
-        g->chg[k] = 1;
-        if (rc != CS_OK) {
-            g->cache_ok = 0;
-            return INFINITY;
-        }
-    }
-    if (!g->trans && m->baseline == CS_BASELINE_EXP) {
-        double rate = g->p[m->base_first + 1];
-        if (!(rate == g->bcol_rate)) {
-            for (size_t i = 0; i < n; i++)
-                g->bcol[i] = exp(-rate * (g->x[i] - g->xr));
-            g->bcol_rate = rate;
-            chg_base = 1;
-        }
-    }
-    for (size_t u = 0; u < nu; u++)
-        g->udirty[u] = (unsigned char)all;
-    for (size_t s = 0; s < g->nsrc; s++) {
-        const lin_src *src = &g->src[s];
-        if (!(src->comp >= 0 ? g->chg[src->comp] : chg_base))
-            continue;
-        const cs_param *pi = &m->par[src->param];
-        if (g->uidx[src->param] >= 0) {
-            g->udirty[g->uidx[src->param]] = 1;
-        } else if (pi->tie >= 0 && g->uidx[pi->tie] >= 0) {
-            g->udirty[g->uidx[pi->tie]] = 1;
-            tt_dirty = 1;
-        } else {
-            tt_dirty = 1;
-        }
-    }
-    for (size_t u = 0; u < nlin; u++)
-        if (g->udirty[u])
-            memset(g->ucol + u * n, 0, n * sizeof *g->ucol);
-    if (tt_dirty)
-        memcpy(g->tt, g->tgt, n * sizeof *g->tt);
-    for (size_t s = 0; s < g->nsrc; s++) {
-        const size_t i = g->src[s].param;
-        const double *v = g->src[s].col;
-        const cs_param *pi = &m->par[i];
-        double *dst = NULL, f = 0.0, fixed_part;
-        if (g->uidx[i] >= 0) {
-            if (g->udirty[g->uidx[i]])
-                dst = g->ucol + (size_t)g->uidx[i] * n;
-            f = 1.0;
-            fixed_part = 0.0;
-        } else if (pi->tie >= 0 && g->uidx[pi->tie] >= 0) {
-            if (g->udirty[g->uidx[pi->tie]])
-                dst = g->ucol + (size_t)g->uidx[pi->tie] * n;
-            f = pi->tie_factor;
-            fixed_part = pi->tie_offset;
-        } else {
-            fixed_part = g->p[i];
-        }
-        if (!tt_dirty)
-            fixed_part = 0.0;
-        if (!dst && fixed_part == 0.0)
-            continue;
-        for (size_t j = 0; j < n; j++) {
-            if (dst)
-                dst[j] += f * v[j];
-            g->tt[j] -= fixed_part * v[j];
-        }
-    }
-    if (tt_dirty)
-        g->ttt = dot(g->tt, g->tt, n);
-    for (size_t u = 0; u < nu; u++) {
-        const double *a = g->ucol + u * n;
-        if (g->udirty[u])
-            for (size_t v = 0; v < nu; v++)
-                if (v == u || !g->udirty[v] || v > u)
-                    g->Gr[u * nu + v] = g->Gr[v * nu + u] = dot(a, g->ucol + v * n, n);
-        if (g->udirty[u] || tt_dirty)
-            g->rhs[u] = dot(a, g->tt, n);
-    }
-    g->cache_ok = 1;
-    return lsq_solve(g->Gr, g->rhs, g->ttt, nu, g->coef, g->G, g->sgn);
-}
-
-enum { CO_WIDTH, CO_CENTER, CO_RATE };
-
-static double coord_get(const gw *g, int kind, size_t k)
-{
-    const cs_model *m = g->m;
-    if (kind == CO_RATE)
-        return g->p[m->base_first + 1];
-    const double *q = g->p + m->comp[k].first;
-    return kind == CO_CENTER ? q[0] : comp_width(m->comp[k].type, q);
-}
-
-static void coord_set(gw *g, int kind, size_t k, double v)
-{
-    const cs_model *m = g->m;
-    if (kind == CO_RATE)
-        g->p[m->base_first + 1] = v;
-    else if (kind == CO_CENTER)
-        g->p[m->comp[k].first] = v;
-    else
-        comp_set_width(m->comp[k].type, g->p + m->comp[k].first, g->guess + m->comp[k].first, v);
-}
-
-/* Minimise the residual along one coordinate: a grid of ng values from a to b (logarithmic
- * when logscale), then iters steps of golden-section search in the best grid bracket. Keeps
- * the best value seen (the current one included, whose residual is *ssr), updates *ssr. */
-static void coord_min(gw *g, int kind, size_t k, double a, double b, size_t ng, int logscale,
-                      int iters, double *ssr)
-{
-    double best_v = coord_get(g, kind, k), best = *ssr;
-    if (!(a < b) || !isfinite(a) || !isfinite(b) || (logscale && !(a > 0.0)))
-        return;
-    double ta = logscale ? log(a) : a, tb = logscale ? log(b) : b;
-    double step = (tb - ta) / (double)(ng - 1);
-    size_t bi = ng;
-    double grid_best = INFINITY;
-    for (size_t j = 0; j < ng; j++) {
-        double tv = ta + step * (double)j;
-        coord_set(g, kind, k, logscale ? exp(tv) : tv);
-        double s = objective(g);
-        if (s < grid_best) {
-            grid_best = s;
-            bi = j;
-        }
-        if (s < best) {
-            best = s;
-            best_v = coord_get(g, kind, k);
-        }
-    }
-    if (bi < ng) {
-        const double gr = 0.61803398874989484820;
-        double lo = ta + step * (double)(bi > 0 ? bi - 1 : 0);
-        double hi = ta + step * (double)(bi + 1 < ng ? bi + 1 : ng - 1);
-        double c1 = hi - gr * (hi - lo), c2 = lo + gr * (hi - lo), f1, f2;
-        coord_set(g, kind, k, logscale ? exp(c1) : c1);
-        f1 = objective(g);
-        coord_set(g, kind, k, logscale ? exp(c2) : c2);
-        f2 = objective(g);
-        for (int it = 0; it < iters; it++) {
-            if (f1 < best) {
-                best = f1;
-                best_v = logscale ? exp(c1) : c1;
-            }
-            if (f2 < best) {
-                best = f2;
-                best_v = logscale ? exp(c2) : c2;
-            }
-            if (f1 <= f2) {
-                hi = c2;
-                c2 = c1;
-                f2 = f1;
-                c1 = hi - gr * (hi - lo);
-                coord_set(g, kind, k, logscale ? exp(c1) : c1);
-                f1 = objective(g);
-            } else {
-                lo = c1;
-                c1 = c2;
-                f1 = f2;
-                c2 = lo + gr * (hi - lo);
-                coord_set(g, kind, k, logscale ? exp(c2) : c2);
-                f2 = objective(g);
-            }
-        }
-        if (f1 < best) {
-            best = f1;
-            best_v = logscale ? exp(c1) : c1;
-        }
-        if (f2 < best) {
-            best = f2;
-            best_v = logscale ? exp(c2) : c2;
-        }
-    }
-    coord_set(g, kind, k, best_v);
-    *ssr = best;
-}
-
-/* ---------------------------------------------------------------- peaks */
-
-typedef struct cand {
-    double xc;    /* position */
-    double w;     /* full width at half prominence */
-    double ws;    /* twice the smaller half width at half prominence: a line on another's flank
-                     is measured on its free side */
-    double wc;    /* curvature width sqrt(8 P / -s''), at most ws */
-    double prom;  /* prominence (shoulders: height estimate) */
-    size_t i;     /* index of the point */
-} cand;
-
-static int cmp_cand_prom(const void *a, const void *b)
-{
-    double x = ((const cand *)a)->prom, y = ((const cand *)b)->prom;
-    return (x < y) - (x > y);
-}
-
-/* Second derivative of s at i by divided differences over +-h points (0 near the ends). */
-static double second_diff(const double *x, const double *s, size_t n, size_t i, size_t h)
-{
-    if (i < h || i + h >= n)
-        return 0.0;
-    double dl = (s[i] - s[i - h]) / (x[i] - x[i - h]);
-    double dr = (s[i + h] - s[i]) / (x[i + h] - x[i]);
-    return 2.0 * (dr - dl) / (x[i + h] - x[i - h]);
-}
-
-/* Peaks of s with prominence >= thr, into out (room for n/2 + 1); returns their number. */
-static size_t find_peaks(const double *x, const double *s, size_t n, double thr, size_t h,
-                         cand *out)
-{
-    size_t nc = 0;
-    for (size_t i = 1; i + 1 < n; i++) {
-        if (!(s[i] > s[i - 1]))
-            continue;
-        size_t j = i;
-        while (j + 1 < n && s[j + 1] == s[i])
-            j++;
-        if (j + 1 >= n || !(s[j + 1] < s[i])) {
-            i = j;
-            continue;
-        }
-        size_t pk = (i + j) / 2;
-        double minl = s[pk], minr = s[pk];
-        size_t l = pk, r = j;
-        while (l > 0 && s[l - 1] <= s[pk])
-            if (s[--l] < minl)
-                minl = s[l];
-        while (r + 1 < n && s[r + 1] <= s[pk])
-            if (s[++r] < minr)
-                minr = s[r];
-        double prom = s[pk] - (minl > minr ? minl : minr);
-        i = j;
-        if (!(prom >= thr))
-            continue;
-        double level = s[pk] - 0.5 * prom, xl = x[0], xr = x[n - 1];
-        for (size_t a = pk; a > 0; a--)
-            if (s[a - 1] <= level) {
-                xl = x[a - 1] + (level - s[a - 1]) * (x[a] - x[a - 1]) / (s[a] - s[a - 1]);
-                break;
-            }
-        for (size_t b = pk; b + 1 < n; b++)
-            if (s[b + 1] <= level) {
-                xr = x[b] + (s[b] - level) * (x[b + 1] - x[b]) / (s[b] - s[b + 1]);
-                break;
-            }
-        /* vertex of the parabola through the three points around the maximum */
-        double x0 = x[pk - 1], x1 = x[pk], x2 = x[pk + 1];
-        double d1 = (s[pk] - s[pk - 1]) / (x1 - x0), d2 = (s[pk + 1] - s[pk]) / (x2 - x1);
-        double c2 = (d2 - d1) / (x2 - x0), xc = x1;
-        if (c2 < 0.0) {
-            xc = 0.5 * (x0 + x1) - d1 / (2.0 * c2);
-            if (xc < x0 || xc > x2)
-                xc = x1;
-        }
-        double curv = -second_diff(x, s, n, pk, h);
-        double ws = 2.0 * (xc - xl < xr - xc ? xc - xl : xr - xc);
-        cand c = {xc, xr - xl, ws, ws, prom, pk};
-        if (curv > 0.0) {
-            double wc = sqrt(8.0 * prom / curv);
-            if (wc < c.wc)
-                c.wc = wc;
-        }
-        out[nc++] = c;
-    }
-    return nc;
-}
-
-/* Shoulders: minima of s'' (inside the signal, clear of the peaks already found) deeper than
- * thr2 (five standard deviations of s'' from noise alone). Appends to c (room for n/2 more);
- * d2: n doubles of scratch. */
-static size_t find_shoulders(const double *x, const double *s, size_t n, double thr, size_t h,
-                             double thr2, cand *c, size_t nc, double *d2)
-{
-    for (size_t i = 0; i < n; i++)
-        d2[i] = second_diff(x, s, n, i, h);
-    size_t n0 = nc;
-    for (size_t i = h + 1; i + h + 1 < n; i++) {
-        if (!(d2[i] < d2[i - 1] && d2[i] <= d2[i + 1] && -d2[i] > thr2 && s[i] > thr))
-            continue;
-        int near = 0;
-        for (size_t k = 0; k < n0; k++)
-            if (fabs(x[i] - c[k].xc) < 0.25 * c[k].ws)
-                near = 1;
-        if (near)
-            continue;
-        size_t l = i, r = i;
-        while (l > 0 && d2[l - 1] < 0.0)
-            l--;
-        while (r + 1 < n && d2[r + 1] < 0.0)
-            r++;
-        double w = 1.5 * (x[r] - x[l]);
-        if (!(w > 0.0))
-            continue;
-        cand sh = {x[i], w, w, w, -d2[i] * w * w / 8.0, i};
-        c[nc++] = sh;
-    }
-    return nc;
-}
-
-/* Gaussian smoothing weights w[0..K] (w[j] for offsets +-j, normalised) of a kernel of sk
- * points; returns K. */
-static size_t kernel(double sk, double w[64])
-{
-    if (sk <= 0.0) {
-        w[0] = 1.0;
-        return 0;
-    }
-    size_t K = (size_t)ceil(3.0 * sk);
-    if (K > 63)
-        K = 63;
-    double sum = 0.0;
-    for (size_t j = 0; j <= K; j++) {
-        w[j] = exp(-0.5 * (double)(j * j) / (sk * sk));
-        sum += j ? 2.0 * w[j] : w[j];
-    }
-    for (size_t j = 0; j <= K; j++)
-        w[j] /= sum;
-    return K;
-}
-
-/* Standard deviations, per unit white-noise sigma, of the smoothed signal (*nf) and of its
- * second difference s[i+h] - 2 s[i] + s[i-h] (*nf2, when not NULL): norms of the filters. */
-static void noise_factors(double sk, size_t h, double *nf, double *nf2)
-{
-    double w[64];
-    long K = (long)kernel(sk, w), H = (long)h;
-    double a = 0.0, b = 0.0;
-    for (long j = -K - H; j <= K + H; j++) {
-        long aj = j < 0 ? -j : j, ap = labs(j + H), am = labs(j - H);
-        double wj = aj <= K ? w[aj] : 0.0;
-        double f = (am <= K ? w[am] : 0.0) - 2.0 * wj + (ap <= K ? w[ap] : 0.0);
-        a += wj * wj;
-        b += f * f;
-    }
-    *nf = sqrt(a);
-    if (nf2)
-        *nf2 = sqrt(b);
-}
-
-/* Gaussian smoothing of r with a kernel of sk points (0: copy) into s; near the ends the
- * weights are renormalised. */
-static void smooth(const double *r, size_t n, double sk, double *s)
-{
-    double w[64];
-    size_t K = kernel(sk, w);
-    for (size_t i = 0; i < n; i++) {
-        double a = w[0] * r[i], ws = w[0];
-        for (size_t j = 1; j <= K; j++) {
-            if (i >= j) {
-                a += w[j] * r[i - j];
-                ws += w[j];
-            }
-            if (i + j < n) {
-                a += w[j] * r[i + j];
-                ws += w[j];
-            }
-        }
-        s[i] = a / ws;
-    }
 }
 
 /* ---------------------------------------------------------------- the guess */
@@ -770,14 +123,14 @@ static void wing_baseline(cs_baseline_kind kind, const double *x, const double *
         nw = 3;
     if (2 * nw > n)
         nw = n / 2 > 0 ? n / 2 : 1;
-    double xl = median(x, nw, scratch), yl = median(v, nw, scratch);
-    double xh = median(x + n - nw, nw, scratch), yh = median(v + n - nw, nw, scratch);
+    double xl = guess_median(x, nw, scratch), yl = guess_median(v, nw, scratch);
+    double xh = guess_median(x + n - nw, nw, scratch), yh = guess_median(v + n - nw, nw, scratch);
     for (size_t j = 0; j < 4; j++)
         c[j] = 0.0;
     if (kind == CS_BASELINE_CONST) {
         memcpy(scratch + n, v, nw * sizeof *v);
         memcpy(scratch + n + nw, v + n - nw, nw * sizeof *v);
-        c[0] = median(scratch + n, 2 * nw, scratch);
+        c[0] = guess_median(scratch + n, 2 * nw, scratch);
     } else if (kind == CS_BASELINE_EXP) {
         if (yl > 0.0 && yh > 0.0 && xh > xl) {
             c[1] = -(log(yh) - log(yl)) / (xh - xl);
@@ -821,132 +174,6 @@ static void sharp_order(const cs_model *m, size_t *order, size_t *rank)
     for (size_t k = 0; k < nc; k++)
         rank[order[k]] = k;
 }
-
-/* Point the workspace at n points x with target tgt: baseline and offset columns, the linear
- * sources, and an empty shape cache. */
-static void gw_bind(gw *g, const double *x, const double *tgt, const double *wt, size_t n)
-{
-    const cs_model *m = g->m;
-    const size_t bf = m->base_first, nb = m->nparams - bf;
-    g->x = x;
-    g->tgt = tgt;
-    g->wt = wt;
-    g->n = n;
-    g->nsrc = 0;
-    g->bcol_rate = NAN;
-    memset(g->shape_ok, 0, m->ncomp ? m->ncomp : 1);
-    for (size_t k = 0; k < m->ncomp; k++) {
-        g->src[g->nsrc].param = m->comp[k].first + cs_profile_area_index(m->comp[k].type);
-        g->src[g->nsrc].comp = (long)k;
-        g->src[g->nsrc++].col = g->shape + k * n;
-    }
-    g->cache_ok = 0;
-    if (!g->trans && nb > 0) {
-        for (size_t j = 0; j < (m->baseline == CS_BASELINE_EXP ? 1 : nb); j++) {
-            if (m->baseline != CS_BASELINE_EXP)
-                for (size_t i = 0; i < n; i++)
-                    g->bcol[j * n + i] = pow(x[i] - g->xr, (double)j);
-            g->src[g->nsrc].param = bf + j;
-            g->src[g->nsrc].comp = -1;
-            g->src[g->nsrc++].col = g->bcol + j * n;
-        }
-    }
-    for (size_t j = 0; j < g->ndelta; j++)
-        for (size_t i = 0; i < n; i++)
-            g->ucol[(g->nu - g->ndelta + j) * n + i] =
-                (j == 0 ? 1.0 : (x[i] - g->xr) / g->hs) * (wt ? wt[i] : 1.0);
-}
-
-/* Cyclic coordinate descent over the components' widths and centres (broadest first) and an
- * exponential baseline's rate; the first sweep scans widths over the whole range, later ones
- * from half to twice the current width. A polish makes at most two sweeps of small steps
- * (widths within 25 %, centres within a quarter width). */
-static void refine(gw *g, const size_t *order, double wmin, int polish)
-{
-    const cs_model *m = g->m;
-    const size_t bf = m->base_first;
-    const double *x = g->x;
-    const size_t np = m->nparams;
-    const int iters = polish ? 6 : GOLDEN_ITERS;
-    double ssr = objective(g);
-    for (int sweep = 0; sweep < (polish ? 2 : MAX_SWEEPS); sweep++) {
-        double prev = ssr;
-        memcpy(g->pold, g->p, np * sizeof *g->p);
-        for (size_t o = m->ncomp; o-- > 0;) { /* broadest first */
-            const size_t k = order[o], first = m->comp[k].first;
-            const cs_profile_type *t = m->comp[k].type;
-            int wfree = 0;
-            for (size_t j = 0; j < t->nparams; j++)
-                wfree |= is_width(t->param_names[j]) && g->guess[first + j];
-            if (wfree) {
-                double w = comp_width(t, g->p + first), a = wmin, b = g->wmax;
-                size_t ng = WIDTH_GRID;
-                if ((sweep > 0 || polish) && w > 0.0 && isfinite(w)) {
-                    double f = polish ? 1.25 : 2.0;
-                    a = w / f > wmin ? w / f : wmin;
-                    b = f * w < g->wmax ? f * w : g->wmax;
-                    ng = polish ? 5 : 9;
-                }
-                coord_min(g, CO_WIDTH, k, a, b, ng, 1, iters, &ssr);
-            }
-            if (g->guess[first]) {
-                double c = g->p[first], w = comp_width(t, g->p + first);
-                if (!(w > 0.0) || !isfinite(w))
-                    w = g->span / 10.0;
-                if (polish)
-                    w *= 0.25;
-                double lo = c - w > x[0] ? c - w : x[0];
-                double hi = c + w < x[g->n - 1] ? c + w : x[g->n - 1];
-                coord_min(g, CO_CENTER, k, lo, hi, polish ? 5 : CENTER_GRID, 0, iters, &ssr);
-            }
-        }
-        if (!g->trans && m->baseline == CS_BASELINE_EXP && g->guess[bf + 1]) {
-            double r0 = g->p[bf + 1], half = fabs(r0) * (polish ? 0.1 : 0.5);
-            if (half < (polish ? 0.1 : 1.0) / g->span)
-                half = (polish ? 0.1 : 1.0) / g->span;
-            coord_min(g, CO_RATE, 0, r0 - half, r0 + half, polish ? 5 : CENTER_GRID, 0, iters,
-                      &ssr);
-        }
-        /* pattern move (Hooke and Jeeves): go on along this sweep's displacement d, to
-         * p + a d for a = 1, 2, 4, 8, while that lowers the residual; it crosses the long
-         * valleys of overlapping lines that coordinate steps zig-zag through */
-        memcpy(g->ptry, g->p, np * sizeof *g->p);
-        double best_a = 0.0;
-        for (double a = 1.0; a <= 8.0 && sweep > 0; a *= 2.0) {
-            for (size_t i = 0; i < np; i++)
-                if (g->guess[i] && g->uidx[i] < 0)
-                    g->p[i] = g->ptry[i] + a * (g->ptry[i] - g->pold[i]);
-            double st = objective(g);
-            if (!(st < ssr))
-                break;
-            ssr = st;
-            best_a = a;
-        }
-        for (size_t i = 0; i < np; i++)
-            if (g->guess[i] && g->uidx[i] < 0)
-                g->p[i] = g->ptry[i] + best_a * (g->ptry[i] - g->pold[i]);
-        if (!(prev - ssr > 1e-4 * prev))
-            break;
-    }
-}
-
-/* Everything the guess works with. */
-typedef struct gctx {
-    cs_model *m;
-    const double *x, *y;
-    size_t n;
-    int trans, base_known, flip;
-    double xr, span, dx, wmin, wmax;
-    double *p, *p0, *pbest, *r, *s, *a, *scratch, *t0w, *xs, *ts, *wt, *wts, *tw;
-    unsigned char *guess;
-    cand *cd;
-    size_t ncd, npk;        /* candidates: all, and the true maxima among them (the first) */
-    size_t *order, *rank, *ac;
-    gw g;
-    void *blocks[40];
-    size_t nblocks;
-    int failed;
-} gctx;
 
 static void *ctx_alloc(gctx *c, size_t bytes)
 {
@@ -1037,92 +264,6 @@ static int step_baseline(gctx *c)
         }
     }
     return CS_OK;
-}
-
-/* Step 2: noise, smoothing and the candidate peaks (most prominent first). */
-static void step_peaks(gctx *c, const double *sigma)
-{
-    const size_t n = c->n;
-    double *r = c->r, *s = c->s, *a = c->a;
-    for (size_t i = 0; i + 1 < n; i++)
-        a[i] = r[i + 1] - r[i];
-    double md = median(a, n - 1, c->scratch);
-    for (size_t i = 0; i + 1 < n; i++)
-        a[i] = fabs(a[i] - md);
-    double sn = 1.4826 * median(a, n - 1, c->scratch) / sqrt(2.0);
-    if (sigma && !c->trans) {
-        size_t k = 0;
-        for (size_t i = 0; i < n; i++)
-            if (isfinite(sigma[i]) && sigma[i] > 0.0)
-                a[k++] = sigma[i];
-        if (k > 0)
-            sn = median(a, k, c->scratch);
-    }
-    double amp = 0.0;
-    for (size_t i = 0; i < n; i++)
-        amp = fabs(r[i]) > amp ? fabs(r[i]) : amp;
-    double rho = amp > 0.0 ? sn / amp : 0.0;
-    double sk = rho < 0.002 ? 0.0 : (1.0 + 40.0 * rho < 3.0 ? 1.0 + 40.0 * rho : 3.0);
-    if (sk > (double)n / 60.0)
-        sk = (double)n / 60.0 < 0.5 ? 0.0 : (double)n / 60.0;
-    smooth(r, n, sk, s);
-    double smax = s[0], smin = s[0];
-    for (size_t i = 1; i < n; i++) {
-        smax = s[i] > smax ? s[i] : smax;
-        smin = s[i] < smin ? s[i] : smin;
-    }
-    const int flip = smax < -smin;
-    c->flip = flip;
-    if (flip) { /* dips: look for peaks of -r */
-        for (size_t i = 0; i < n; i++)
-            s[i] = -s[i];
-        smax = -smin;
-    }
-    size_t h = sk >= 1.5 ? (size_t)lround(sk) : 1;
-    double nf;
-    noise_factors(sk, h, &nf, NULL);
-    double thr = 8.0 * sn * nf > 0.02 * smax ? 8.0 * sn * nf : 0.02 * smax;
-    size_t npk = find_peaks(c->x, s, n, thr, h, c->cd);
-    if (c->trans) { /* the absorbance's noise grows as 1/T: a dip must stand out of its own */
-        size_t keep = 0;
-        for (size_t k = 0; k < npk; k++) {
-            size_t i = c->cd[k].i;
-            double t = c->y[i] / c->t0w[i];
-            if (c->cd[k].prom * (t > 0.03 ? t : 0.03) >= 8.0 * sn * nf)
-                c->cd[keep++] = c->cd[k];
-        }
-        npk = keep;
-    }
-    qsort(c->cd, npk, sizeof *c->cd, cmp_cand_prom);
-    c->ncd = c->npk = npk;
-    if (npk < c->m->ncomp) {
-        /* shoulders, at the scale of the main peak (a sixth of its width) and four times it */
-        double sk0 = npk > 0 ? c->cd[0].w / c->dx / 6.0 : sk, prev = -1.0;
-        double *s2 = c->scratch + n;
-        for (int sc = 0; sc < 2; sc++) {
-            double sk2 = (sk0 > sk ? sk0 : sk) * (sc ? 4.0 : 1.0);
-            sk2 = sk2 > 21.0 ? 21.0 : sk2;
-            sk2 = sk2 > (double)n / 20.0 ? (double)n / 20.0 : sk2;
-            size_t h2 = sk2 >= 1.5 ? (size_t)lround(sk2) : 1;
-            if (!(sk2 > prev) || n < 2 * h2 + 3)
-                break;
-            prev = sk2;
-            smooth(r, n, sk2, s2);
-            for (size_t i = 0; flip && i < n; i++)
-                s2[i] = -s2[i];
-            double nfa, nfb;
-            noise_factors(sk2, h2, &nfa, &nfb);
-            double thr2b = 5.0 * sn * nfb / ((double)(h2 * h2) * c->dx * c->dx);
-            c->ncd = find_shoulders(c->x, s2, n, thr, h2, thr2b, c->cd, c->ncd, a);
-        }
-        qsort(c->cd + npk, c->ncd - npk, sizeof *c->cd, cmp_cand_prom);
-    }
-    for (size_t k = 0; k < c->ncd; k++) {
-        cand *d = &c->cd[k];
-        d->w = d->w < c->wmin ? c->wmin : d->w > c->wmax ? c->wmax : d->w;
-        d->ws = d->ws < c->wmin ? c->wmin : d->ws > d->w ? d->w : d->ws;
-        d->wc = d->wc < c->wmin ? c->wmin : d->wc > d->ws ? d->ws : d->wc;
-    }
 }
 
 /* Step 3: components to peaks; initial centres, widths and shape parameters into p. */
@@ -1217,7 +358,8 @@ static void step_assign(gctx *c, size_t ncd)
             if (gq[j] && strcmp(t->param_names[j], "q") == 0)
                 q[j] = 5.0;
         }
-        comp_set_width(t, q, gq, W0[k] < c->wmin ? c->wmin : W0[k] > c->wmax ? c->wmax : W0[k]);
+        guess_comp_set_width(t, q, gq,
+                             W0[k] < c->wmin ? c->wmin : W0[k] > c->wmax ? c->wmax : W0[k]);
         if (gq[0]) {
             q[0] = C0[k];
             size_t iq = pindex(t, "q");
@@ -1256,7 +398,7 @@ static double step_refine(gctx *c)
         tgt = c->tw;
         wt = c->wt;
     }
-    gw_bind(g, c->x, tgt, wt, n);
+    guess_gw_bind(g, c->x, tgt, wt, n);
     for (size_t i = 0; i < np; i++)
         g->uidx[i] = -1;
     g->nu = 0;
@@ -1270,11 +412,11 @@ static double step_refine(gctx *c)
     if (c->trans && nb > 0 && !c->base_known)
         g->ndelta = m->baseline == CS_BASELINE_CONST ? 1 : 2;
     g->nu += g->ndelta;
-    gw_bind(g, c->x, tgt, wt, n); /* now with the offset columns */
+    guess_gw_bind(g, c->x, tgt, wt, n); /* now with the offset columns */
 
     double wn = INFINITY;
     for (size_t k = 0; k < m->ncomp; k++) {
-        double w = comp_width(m->comp[k].type, c->p + m->comp[k].first);
+        double w = guess_comp_width(m->comp[k].type, c->p + m->comp[k].first);
         wn = w < wn ? w : wn;
     }
     size_t stride = isfinite(wn) ? (size_t)(wn / (10.0 * c->dx)) : 1;
@@ -1287,14 +429,14 @@ static double step_refine(gctx *c)
             c->ts[ns] = tgt[i];
             c->wts[ns] = wt ? wt[i] : 1.0;
         }
-        gw_bind(g, c->xs, c->ts, wt ? c->wts : NULL, ns);
-        refine(g, c->order, 2.0 * c->dx * (double)stride, 0);
-        gw_bind(g, c->x, tgt, wt, n);
-        refine(g, c->order, c->wmin, 1);
+        guess_gw_bind(g, c->xs, c->ts, wt ? c->wts : NULL, ns);
+        guess_refine(g, c->order, 2.0 * c->dx * (double)stride, 0);
+        guess_gw_bind(g, c->x, tgt, wt, n);
+        guess_refine(g, c->order, c->wmin, 1);
     } else {
-        refine(g, c->order, c->wmin, 0);
+        guess_refine(g, c->order, c->wmin, 0);
     }
-    return objective(g);
+    return guess_objective(g);
 }
 
 /* Whether the guess may move component k: its centre and widths are all free. */
@@ -1322,19 +464,19 @@ static double step_relabel(gctx *c, double ssr)
             size_t a = c->order[o], b = c->order[o2];
             if (!movable(c, a) || !movable(c, b))
                 continue;
-            double wa = coord_get(g, CO_WIDTH, a), wb = coord_get(g, CO_WIDTH, b);
+            double wa = guess_coord_get(g, CO_WIDTH, a), wb = guess_coord_get(g, CO_WIDTH, b);
             if (!(wa > wb))
                 continue;
-            double ca = coord_get(g, CO_CENTER, a), cb = coord_get(g, CO_CENTER, b);
-            coord_set(g, CO_WIDTH, a, wb);
-            coord_set(g, CO_CENTER, a, cb);
-            coord_set(g, CO_WIDTH, b, wa);
-            coord_set(g, CO_CENTER, b, ca);
+            double ca = guess_coord_get(g, CO_CENTER, a), cb = guess_coord_get(g, CO_CENTER, b);
+            guess_coord_set(g, CO_WIDTH, a, wb);
+            guess_coord_set(g, CO_CENTER, a, cb);
+            guess_coord_set(g, CO_WIDTH, b, wa);
+            guess_coord_set(g, CO_CENTER, b, ca);
             swapped = 1;
         }
     if (swapped) {
-        refine(g, c->order, c->wmin, 1);
-        ssr = objective(g);
+        guess_refine(g, c->order, c->wmin, 1);
+        ssr = guess_objective(g);
     }
     return ssr;
 }
@@ -1387,7 +529,7 @@ static void step_extract(gctx *c)
                 cols[nfree * n + i] = pow(c->x[i] - c->xr, (double)j);
             nfree++;
         }
-    if (nfree > 0 && isfinite(lsq(cols, nfree, tc, n, cf)))
+    if (nfree > 0 && isfinite(guess_lsq(cols, nfree, tc, n, cf)))
         for (size_t j = 0, f = 0; j < nb; j++)
             if (c->guess[bf + j])
                 p[bf + j] = cf[f++];
@@ -1444,7 +586,7 @@ int cs_model_guess(cs_model *m, const double *x, const double *y, const double *
     c.span = x[n - 1] - x[0];
     for (size_t i = 0; i + 1 < n; i++)
         c.a[i] = x[i + 1] - x[i];
-    c.dx = median(c.a, n - 1, c.scratch);
+    c.dx = guess_median(c.a, n - 1, c.scratch);
     c.wmin = 2.0 * c.dx;
     c.wmax = 2.0 * c.span;
 
@@ -1453,7 +595,7 @@ int cs_model_guess(cs_model *m, const double *x, const double *y, const double *
         return cs_error_set(err, CS_EDATA, NULL, -1, -1,
                             "guess: the transmission baseline must be positive");
     }
-    step_peaks(&c, sigma);
+    guess_step_peaks(&c, sigma);
     /* steps 3 to 5; when shoulders were used, once more without them (a shoulder can be a noise
      * feature that misleads the assignment), keeping the start that fits better */
     memcpy(c.p0, c.p, np * sizeof *c.p);
@@ -1466,7 +608,7 @@ int cs_model_guess(cs_model *m, const double *x, const double *y, const double *
         double ssr2 = step_relabel(&c, step_refine(&c));
         if (!(ssr2 < ssr)) {
             memcpy(c.p, c.pbest, np * sizeof *c.p);
-            ssr = objective(&c.g);
+            ssr = guess_objective(&c.g);
         } else {
             ssr = ssr2;
         }

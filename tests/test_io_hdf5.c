@@ -1,4 +1,4 @@
-/* Check suite for the HDF5 loader (src/io_hdf5.c). */
+/* Check suite for the HDF5 loader (src/io_hdf5.c, src/io_hdf5_tree.c). */
 /*
  * Every input file is written here with the HDF5 C API, the way lab scripts write them (h5py
  * conventions included: complex numbers as a compound {r, i}, strings as variable-length UTF-8,

@@ -1,4 +1,4 @@
-/* Check suite for the NumPy .npy reader and writer (src/io_npy.c). */
+/* Check suite for the NumPy .npy reader and writer (src/io_npy.c, src/io_npy_*.c). */
 /*
  * Every input file is assembled here byte by byte, independently of the library's writer, following
  * the NumPy format specification (numpy.lib.format, NEP 1):

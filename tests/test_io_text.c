@@ -1,4 +1,4 @@
-/* Check suite for the delimited-text loader and writers (src/io_text.c). */
+/* Check suite for the delimited-text loader and writers (src/io_text.c and src/io_text_*.c). */
 /*
  * Inputs are written by each test (tu_write_text) so that the bytes under test sit next to the
  * expectations; one fixture in tests/data/text/ checks the loader on a file as it lies on disk.

@@ -1,0 +1,402 @@
+/* Matrix pencil: the leading singular subspace of the Hankel matrix by FFT products and Krylov. */
+/*
+ * See item 1 at the top of pencil.c: the leading eigenpairs of the Gram matrix G = X X^H
+ * (X = Y^T, Y the Hankel matrix of the record) come from a block Krylov (block Lanczos)
+ * iteration with full reorthogonalisation and Rayleigh-Ritz extraction; G is never formed, its
+ * products being two correlations of the record done by FFT.
+ */
+#include <collshift/pencil.h>
+
+#include "pencil_impl.h"
+
+#include <gsl/gsl_eigen.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_linalg.h>
+#include <gsl/gsl_matrix.h>
+#include <gsl/gsl_vector.h>
+
+#include <float.h>
+#include <math.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Krylov iteration: tolerances and limits (see pencil_subspace()). */
+#define KRYLOV_VEC_TOL 1e-10   /* relative residual of the singular vectors used */
+#define KRYLOV_ABS_TOL 1e-13   /* ... or this fraction of sigma_1^2 (rounding floor) */
+#define KRYLOV_VAL_TOL 0.1
+#define KRYLOV_ACCEPT 1e-6     /* vectors worse than this at the limit: CS_ENOCONV */
+#define KRYLOV_FULL 48         /* below this dimension the whole space is used */
+#define KRYLOV_DEFLATE 1e-9    /* a candidate shrinking below this fraction is dependent */
+
+/* ---------------------------------------------------------------- Hankel products by FFT */
+
+/* Smallest 2^a 3^b 5^c >= n (n >= 1). */
+static size_t fft_length(size_t n)
+{
+    size_t best = SIZE_MAX;
+    for (size_t p5 = 1; p5 < 2 * n && p5 < SIZE_MAX / 5; p5 *= 5)
+        for (size_t p3 = p5; p3 < 2 * n && p3 < SIZE_MAX / 3; p3 *= 3) {
+            size_t p = p3;
+            while (p < n)
+                p *= 2;
+            if (p < best)
+                best = p;
+        }
+    return best;
+}
+
+void pencil_hankel_release(hankel *h)
+{
+    free(h->yhat);
+    free(h->buf);
+    if (h->wt)
+        gsl_fft_complex_wavetable_free(h->wt);
+    if (h->ws)
+        gsl_fft_complex_workspace_free(h->ws);
+    memset(h, 0, sizeof *h);
+}
+
+int pencil_hankel_init(hankel *h, cplx *y, size_t N, size_t L)
+{
+    memset(h, 0, sizeof *h);
+    h->N = N;
+    h->n = L + 1;
+    h->m = N - L;
+    h->P = fft_length(N);
+    h->y = y;
+    h->yhat = malloc(h->P * sizeof *h->yhat);
+    h->buf = malloc(h->P * sizeof *h->buf);
+    h->wt = gsl_fft_complex_wavetable_alloc(h->P);
+    h->ws = gsl_fft_complex_workspace_alloc(h->P);
+    if (!h->yhat || !h->buf || !h->wt || !h->ws) {
+        pencil_hankel_release(h);
+        return CS_ENOMEM;
+    }
+    memcpy(h->yhat, y, N * sizeof *y);
+    for (size_t t = N; t < h->P; t++)
+        h->yhat[t] = 0;
+    if (gsl_fft_complex_forward((double *)h->yhat, 1, h->P, h->wt, h->ws) != GSL_SUCCESS) {
+        pencil_hankel_release(h);
+        return CS_ENOMEM;
+    }
+    return CS_OK;
+}
+
+/* out[i] = sum_{j < lv} y[i + j] v[j] for i < lo, where lo + lv - 1 = N. As a circular
+ * correlation of length P >= N: its transform is yhat[k] * vhat[-k]. */
+static void hankel_corr(hankel *h, const cplx *v, size_t lv, cplx *out, size_t lo)
+{
+    size_t P = h->P;
+    cplx *b = h->buf;
+    /* b[t] = v[-t mod P], whose transform is vhat[-k] */
+    b[0] = v[0];
+    for (size_t t = 1; t < P; t++)
+        b[t] = (P - t < lv) ? v[P - t] : 0;
+    gsl_fft_complex_forward((double *)b, 1, P, h->wt, h->ws);
+    for (size_t k = 0; k < P; k++)
+        b[k] *= h->yhat[k];
+    gsl_fft_complex_inverse((double *)b, 1, P, h->wt, h->ws);
+    memcpy(out, b, lo * sizeof *out);
+}
+
+/* X^H v (length m) for v of length n: conj(Y conj v)... with X = Y^T, X^H = conj(Y). */
+void pencil_hankel_xh(hankel *h, const cplx *v, cplx *out, cplx *tmp)
+{
+    for (size_t j = 0; j < h->n; j++)
+        tmp[j] = conj(v[j]);
+    hankel_corr(h, tmp, h->n, out, h->m);
+    for (size_t i = 0; i < h->m; i++)
+        out[i] = conj(out[i]);
+}
+
+/* G v = X (X^H v) for v of length n; tmp holds n + m. */
+static void hankel_gram(hankel *h, const cplx *v, cplx *out, cplx *tmp)
+{
+    cplx *w = tmp + h->n;
+    pencil_hankel_xh(h, v, w, tmp);
+    hankel_corr(h, w, h->m, out, h->n);
+}
+
+/* Linear convolution c[t] = sum_j u[j] g[t - j] of u (n) and g (m), t < N = n + m - 1. */
+void pencil_hankel_conv(hankel *h, const cplx *u, const cplx *g, cplx *c, cplx *tmp)
+{
+    size_t P = h->P;
+    cplx *b = h->buf;
+    for (size_t t = 0; t < P; t++) {
+        b[t] = t < h->n ? u[t] : 0;
+        tmp[t] = t < h->m ? g[t] : 0;
+    }
+    gsl_fft_complex_forward((double *)b, 1, P, h->wt, h->ws);
+    gsl_fft_complex_forward((double *)tmp, 1, P, h->wt, h->ws);
+    for (size_t k = 0; k < P; k++)
+        b[k] *= tmp[k];
+    gsl_fft_complex_inverse((double *)b, 1, P, h->wt, h->ws);
+    memcpy(c, b, h->N * sizeof *c);
+}
+
+/* ---------------------------------------------------------------- leading eigenpairs of G */
+
+/* Deterministic pseudo-random numbers for the Krylov start (splitmix64). */
+static double rand_unit(uint64_t *s)
+{
+    uint64_t z = (*s += 0x9e3779b97f4a7c15ULL);
+    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+    z ^= z >> 31;
+    return (double)(z >> 11) * 0x1.0p-52 - 1.0;
+}
+
+static double vnorm(const cplx *v, size_t n)
+{
+    double s = 0.0;
+    for (size_t i = 0; i < n; i++)
+        s += creal(v[i]) * creal(v[i]) + cimag(v[i]) * cimag(v[i]);
+    return sqrt(s);
+}
+
+/* Remove from v its components along the k orthonormal columns of Q (n each): modified
+ * Gram-Schmidt, twice, which keeps the basis orthogonal to rounding ("twice is enough").
+ * Returns the final norm. */
+static double orthogonalise(const cplx *Q, size_t n, size_t k, cplx *v)
+{
+    for (int pass = 0; pass < 2; pass++)
+        for (size_t c = 0; c < k; c++) {
+            const cplx *q = Q + c * n;
+            cplx d = 0;
+            for (size_t i = 0; i < n; i++)
+                d += conj(q[i]) * v[i];
+            for (size_t i = 0; i < n; i++)
+                v[i] -= d * q[i];
+        }
+    return vnorm(v, n);
+}
+
+/* Order from K leading eigenvalues theta of G (n x n); *floor gets the noise floor. */
+static size_t choose_order(const order_ctl *c, const double *theta, size_t K, size_t n,
+                           double *floor)
+{
+    double sum = 0.0;
+    for (size_t i = 0; i < K; i++)
+        sum += fmax(theta[i], 0.0);
+    double f2 = (c->trace - sum) / (double)(n - K);
+    *floor = sqrt(fmax(f2, 0.0));
+    if (c->fixed)
+        return c->fixed;
+    double s1 = sqrt(fmax(theta[0], 0.0));
+    size_t M = 0;
+    if (c->rule == CS_PENCIL_ORDER_NOISE) {
+        while (M < c->mcap && M < K) {
+            double s = sqrt(fmax(theta[M], 0.0));
+            if (s < c->noise_threshold * *floor || s < c->rel_threshold * s1 || s <= 0.0)
+                break;
+            M++;
+        }
+    } else {
+        double best = 0.0;
+        for (size_t k = 0; k < c->mcap && k + 1 < K; k++) {
+            double s = sqrt(fmax(theta[k], 0.0)), s2 = sqrt(fmax(theta[k + 1], 0.0));
+            if (s < c->rel_threshold * s1 || s <= 0.0)
+                break;
+            double ratio = s2 > 0.0 ? s / s2 : INFINITY;
+            if (ratio > best) {
+                best = ratio;
+                M = k + 1;
+            }
+        }
+    }
+    return M;
+}
+
+/* Rayleigh-Ritz on the k x k Hermitian T (row-major, leading dimension ld): the K leading
+ * eigenvalues (descending) into theta and the eigenvector coefficients (k x K, column i at
+ * C + i k) into C. */
+static int rayleigh_ritz(const cplx *T, size_t ld, size_t k, size_t K, double *theta, cplx *C)
+{
+    int status = CS_ENOMEM;
+    gsl_matrix_complex *A = gsl_matrix_complex_alloc(k, k);
+    gsl_matrix_complex *U = gsl_matrix_complex_alloc(k, k);
+    gsl_vector_complex *tau = gsl_vector_complex_alloc(k - 1);
+    gsl_vector *d = gsl_vector_alloc(k), *e = gsl_vector_alloc(k - 1), *ev = gsl_vector_alloc(k);
+    gsl_matrix *D = gsl_matrix_calloc(k, k), *V = gsl_matrix_alloc(k, k);
+    gsl_eigen_symmv_workspace *w = gsl_eigen_symmv_alloc(k);
+    if (!A || !U || !tau || !d || !e || !ev || !D || !V || !w)
+        goto done;
+    for (size_t i = 0; i < k; i++)
+        for (size_t j = 0; j < k; j++) {
+            /* Hermitian part, so rounding cannot make it non-Hermitian */
+            cplx a = 0.5 * (T[i * ld + j] + conj(T[j * ld + i]));
+            gsl_matrix_complex_set(A, i, j, to_gsl(a));
+        }
+    status = CS_ENOCONV;
+    if (gsl_linalg_hermtd_decomp(A, tau) != GSL_SUCCESS
+        || gsl_linalg_hermtd_unpack(A, tau, U, d, e) != GSL_SUCCESS)
+        goto done;
+    for (size_t i = 0; i < k; i++) {
+        gsl_matrix_set(D, i, i, gsl_vector_get(d, i));
+        if (i + 1 < k) {
+            gsl_matrix_set(D, i, i + 1, gsl_vector_get(e, i));
+            gsl_matrix_set(D, i + 1, i, gsl_vector_get(e, i));
+        }
+    }
+    if (gsl_eigen_symmv(D, ev, V, w) != GSL_SUCCESS
+        || gsl_eigen_symmv_sort(ev, V, GSL_EIGEN_SORT_VAL_DESC) != GSL_SUCCESS)
+        goto done;
+    for (size_t c = 0; c < K; c++) {
+        theta[c] = gsl_vector_get(ev, c);
+        for (size_t i = 0; i < k; i++) {
+            cplx s = 0;
+            for (size_t j = 0; j < k; j++)
+                s += from_gsl(gsl_matrix_complex_get(U, i, j)) * gsl_matrix_get(V, j, c);
+            C[c * k + i] = s;
+        }
+    }
+    status = CS_OK;
+done:
+    gsl_matrix_complex_free(A);
+    gsl_matrix_complex_free(U);
+    gsl_vector_complex_free(tau);
+    gsl_vector_free(d);
+    gsl_vector_free(e);
+    gsl_vector_free(ev);
+    gsl_matrix_free(D);
+    gsl_matrix_free(V);
+    if (w)
+        gsl_eigen_symmv_free(w);
+    return status;
+}
+
+/* The K leading eigenpairs of G by block Krylov iteration with full reorthogonalisation: the
+ * basis Q grows by blocks of b vectors, each block G times the previous one made orthonormal to
+ * everything before (a candidate that falls into the span, as happens when G has rank < k, is
+ * replaced by a random vector), and after each block the Rayleigh-Ritz pairs of Q^H G Q are
+ * tested: done when the M vectors the pencil uses have relative residual ||G s - theta s|| /
+ * theta <= KRYLOV_VEC_TOL (or the rounding floor) and the other K - M values KRYLOV_VAL_TOL,
+ * or when the basis reaches kmax. Small problems (n <= KRYLOV_FULL or 3b) use the whole space. */
+int pencil_subspace(hankel *h, size_t K, const order_ctl *oc, ritz *out)
+{
+    size_t n = h->n;
+    size_t b = K + 2 < n ? K + 2 : n;
+    size_t kmax = (n <= KRYLOV_FULL || n <= 3 * b) ? n : (12 * b > 160 ? 12 * b : 160);
+    if (kmax > n)
+        kmax = n;
+    int status = CS_ENOMEM;
+    cplx *Q = malloc(n * kmax * sizeof *Q);
+    cplx *W = malloc(n * kmax * sizeof *W);
+    cplx *T = malloc(kmax * kmax * sizeof *T);
+    cplx *C = malloc(kmax * K * sizeof *C);
+    cplx *v = malloc(n * sizeof *v);
+    cplx *tmp = malloc((n + h->m) * sizeof *tmp);
+    cplx *r = malloc(n * sizeof *r);
+    double *theta = malloc(K * sizeof *theta);
+    out->theta = malloc(K * sizeof *out->theta);
+    out->S = malloc(n * K * sizeof *out->S);
+    if (!Q || !W || !T || !C || !v || !tmp || !r || !theta || !out->theta || !out->S)
+        goto done;
+    out->K = K;
+    out->converged = 0;
+    uint64_t seed = 0x5eed1234abcdULL;
+    size_t k = 0, last0 = 0, last1 = 0; /* the previous block is columns [last0, last1) */
+    status = CS_OK;
+    for (;;) {
+        /* next block: G times the previous block, or random vectors */
+        size_t want = b < kmax - k ? b : kmax - k;
+        size_t from = last0, added = 0;
+        int tries = 0;
+        while (added < want) {
+            if (from < last1) {
+                memcpy(v, W + from * n, n * sizeof *v);
+                from++;
+            } else {
+                for (size_t i = 0; i < n; i++)
+                    v[i] = rand_unit(&seed) + I * rand_unit(&seed);
+                if (++tries > (int)(4 * kmax))
+                    break; /* cannot happen unless the arithmetic is broken */
+            }
+            double n0 = vnorm(v, n);
+            if (!(n0 > 0.0) || !isfinite(n0))
+                continue;
+            double n1 = orthogonalise(Q, n, k, v);
+            if (!(n1 > KRYLOV_DEFLATE * n0))
+                continue;
+            cplx *q = Q + k * n;
+            for (size_t i = 0; i < n; i++)
+                q[i] = v[i] / n1;
+            hankel_gram(h, q, W + k * n, tmp);
+            k++;
+            added++;
+        }
+        last0 = k - added;
+        last1 = k;
+        /* new columns of T = Q^H W */
+        for (size_t c = last0; c < k; c++)
+            for (size_t a = 0; a < k; a++) {
+                cplx s = 0;
+                const cplx *qa = Q + a * n, *wc = W + c * n;
+                for (size_t i = 0; i < n; i++)
+                    s += conj(qa[i]) * wc[i];
+                T[a * kmax + c] = s;
+                T[c * kmax + a] = conj(s);
+            }
+        if (added > 0 && k < K + 1 && k < n)
+            continue;
+        size_t Kk = K < k ? K : k;
+        status = rayleigh_ritz(T, kmax, k, Kk, theta, C);
+        if (status != CS_OK)
+            goto done;
+        /* residuals and the order they imply */
+        for (size_t c = Kk; c < K; c++)
+            theta[c] = 0.0;
+        size_t M = choose_order(oc, theta, K, n, &out->floor);
+        if (M > Kk)
+            M = Kk;
+        int ok = 1;
+        double worst = 0.0, top = fmax(theta[0], DBL_MIN);
+        for (size_t c = 0; c < Kk; c++) {
+            const cplx *cc = C + c * k;
+            for (size_t i = 0; i < n; i++) {
+                cplx s = 0, g = 0;
+                for (size_t j = 0; j < k; j++) {
+                    s += Q[j * n + i] * cc[j];
+                    g += W[j * n + i] * cc[j];
+                }
+                out->S[c * n + i] = s;
+                r[i] = g - theta[c] * s;
+            }
+            double res = vnorm(r, n);
+            double th = fabs(theta[c]);
+            if (c < M) {
+                /* relative to theta, or to the rounding floor for the tiny ones */
+                double rel = res / fmax(th, KRYLOV_ABS_TOL / KRYLOV_VEC_TOL * top);
+                if (rel > worst)
+                    worst = rel;
+                if (rel > KRYLOV_VEC_TOL)
+                    ok = 0;
+            } else if (res > fmax(KRYLOV_VAL_TOL * th, KRYLOV_ABS_TOL * top)) {
+                ok = 0;
+            }
+        }
+        memcpy(out->theta, theta, K * sizeof *theta);
+        out->M = M;
+        out->dim = k;
+        out->worst = worst;
+        if (ok || k == n) {
+            out->converged = 1;
+            break;
+        }
+        if (k >= kmax || added == 0) {
+            out->converged = worst <= KRYLOV_ACCEPT;
+            break;
+        }
+    }
+done:
+    free(Q);
+    free(W);
+    free(T);
+    free(C);
+    free(v);
+    free(tmp);
+    free(r);
+    free(theta);
+    return status;
+}
