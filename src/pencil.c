@@ -294,7 +294,7 @@ static int propagate(work *w, size_t M, const cplx *z, const cplx *Rv, const cpl
             coef[t] = w->c[k * N + t] / z[k];
         double sd_re, sd_im;
         noise_sd2(coef, N, is_complex, s2, &sd_re, &sd_im);
-        comp[k].gamma_per_s_err = sd_re / dt1;
+        comp[k].gamma_per_s_err = 2.0 * sd_re / dt1;   /* intensity rate = 2 x amplitude rate */
         comp[k].freq_hz_err = sd_im / (2.0 * PI * dt1);
         comp[k].fwhm_hz_err = comp[k].gamma_per_s_err / (2.0 * PI);
         /* amplitude: pinv(Z) (e - sum_l a_l dZ/dz_l dz_l), then the decimation correction */
@@ -549,7 +549,7 @@ int cs_pencil_estimate(const double *samples, size_t n, int is_complex, double d
     for (size_t k = 0; k < M; k++) {
         cs_pencil_component *c = &out->comp[k];
         cplx lz = clog(z[k]);
-        c->gamma_per_s = -creal(lz) / dt1;
+        c->gamma_per_s = -2.0 * creal(lz) / dt1;   /* |z| = exp(-Gamma dt / 2): Gamma is the intensity rate */
         c->freq_hz = cimag(lz) / (2.0 * PI * dt1);
         c->fwhm_hz = c->gamma_per_s / (2.0 * PI);
         cplx zeta = cexp(lz / (double)D), SD = 0, pw = 1;
@@ -620,7 +620,7 @@ int cs_pencil_eval(const cs_pencil_result *r, size_t n, int is_complex, double *
             const cs_pencil_component *c = &r->comp[k];
             double tt = (double)t * r->dt_s;
             s += c->amplitude * cexp(I * c->phase_rad)
-                 * cexp((-c->gamma_per_s + 2.0 * PI * I * c->freq_hz) * tt);
+                 * cexp((-0.5 * c->gamma_per_s + 2.0 * PI * I * c->freq_hz) * tt);
         }
         if (is_complex) {
             out[2 * t] = creal(s);

@@ -67,7 +67,7 @@ static const cs_pencil_component *match(const cs_pencil_result *r, const line *l
     double bd = INFINITY;
     for (size_t k = 0; k < r->order; k++) {
         double d = hypot(r->comp[k].freq_hz - l->f,
-                         (r->comp[k].gamma_per_s - l->gamma) / (2 * PI_T));
+                         (r->comp[k].gamma_per_s - 2.0 * l->gamma) / (2 * PI_T));
         if (d < bd) {
             bd = d;
             best = &r->comp[k];
@@ -117,9 +117,11 @@ static void check_exact(const struct exact_case *c, const cs_pencil_result *r,
         double res = 1.0 / ((double)c->n * c->dt);
         ck_assert_msg(near(p->freq_hz, l->f, 1e-8, 1e-10 * res), "%s: f %.15g vs %.15g", c->what,
                       p->freq_hz, l->f);
-        ck_assert_msg(near(p->gamma_per_s, l->gamma, 1e-8, 1e-9 * res), "%s: gamma %.15g vs %.15g",
-                      c->what, p->gamma_per_s, l->gamma);
-        ck_assert(near(p->fwhm_hz, l->gamma / (2.0 * PI_T), 1e-8, 1e-9 * res));
+        /* reported Gamma is the intensity rate, twice the amplitude rate of the synthetic signal;
+           the Lorentzian FWHM of exp(-g t) is g / pi (handbook Fourier pair) */
+        ck_assert_msg(near(p->gamma_per_s, 2.0 * l->gamma, 1e-8, 2e-9 * res), "%s: gamma %.15g vs %.15g",
+                      c->what, p->gamma_per_s, 2.0 * l->gamma);
+        ck_assert(near(p->fwhm_hz, l->gamma / PI_T, 1e-8, 1e-9 * res));
         ck_assert_msg(near(p->amplitude, l->amp, 1e-8, 0.0), "%s: amplitude %.15g vs %.15g",
                       c->what, p->amplitude, l->amp);
         ck_assert_msg(fabs(dphase(p->phase_rad, l->phase)) < 1e-8, "%s: phase %.15g vs %.15g",
@@ -226,7 +228,7 @@ START_TEST(test_real_cosine)
     ck_assert(near(r.comp[0].freq_hz, f, 1e-8, 0.0));
     ck_assert(near(r.comp[1].freq_hz, -f, 1e-8, 0.0));
     for (int k = 0; k < 2; k++) {
-        ck_assert(near(r.comp[k].gamma_per_s, g, 1e-8, 0.0));
+        ck_assert(near(r.comp[k].gamma_per_s, 2.0 * g, 1e-8, 0.0));
         ck_assert(near(r.comp[k].amplitude, A / 2.0, 1e-8, 0.0));
     }
     ck_assert(fabs(dphase(r.comp[0].phase_rad, phi)) < 1e-8);
@@ -260,7 +262,7 @@ START_TEST(test_real_two_cosines)
     ck_assert(near(r.comp[0].freq_hz, 30000.0, 1e-8, 0.0));
     ck_assert(near(r.comp[1].freq_hz, -30000.0, 1e-8, 0.0));
     ck_assert(near(r.comp[2].freq_hz, 110000.0, 1e-8, 0.0));
-    ck_assert(near(r.comp[3].gamma_per_s, 6000.0, 1e-8, 0.0));
+    ck_assert(near(r.comp[3].gamma_per_s, 2.0 * 6000.0, 1e-8, 0.0));
     ck_assert(near(r.comp[2].amplitude, 0.2, 1e-8, 0.0));
     cs_pencil_result_release(&r);
     free(y);
@@ -291,7 +293,7 @@ START_TEST(test_reduce_average)
         const cs_pencil_component *q = match(&r, &c[j], 10.0);
         ck_assert_ptr_nonnull(q);
         ck_assert(near(q->freq_hz, c[j].f, 1e-8, 0.0));
-        ck_assert(near(q->gamma_per_s, c[j].gamma, 1e-8, 0.0));
+        ck_assert(near(q->gamma_per_s, 2.0 * c[j].gamma, 1e-8, 0.0));
         ck_assert(near(q->amplitude, c[j].amp, 1e-8, 0.0));
         ck_assert(fabs(dphase(q->phase_rad, c[j].phase)) < 1e-8);
         /* the pole refers to the input sampling interval */
@@ -340,7 +342,7 @@ START_TEST(test_reduce_truncate)
     ck_assert_uint_eq(r.decimation, 1);
     ck_assert_uint_eq(r.n_used, 700);
     ck_assert(near(r.comp[0].freq_hz, c.f, 1e-8, 0.0));
-    ck_assert(near(r.comp[0].gamma_per_s, c.gamma, 1e-8, 0.0));
+    ck_assert(near(r.comp[0].gamma_per_s, 2.0 * c.gamma, 1e-8, 0.0));
     ck_assert(near(r.comp[0].amplitude, c.amp, 1e-8, 0.0));
     cs_pencil_result_release(&r);
     free(y);
@@ -492,7 +494,7 @@ START_TEST(test_error_calibration)
         ck_assert_uint_eq(r.order, 1);
         ck_assert_int_eq(r.error_status, CS_OK);
         const cs_pencil_component *c = &r.comp[0];
-        double dev[4] = {c->freq_hz - l.f, c->gamma_per_s - l.gamma, c->amplitude - l.amp,
+        double dev[4] = {c->freq_hz - l.f, c->gamma_per_s - 2.0 * l.gamma, c->amplitude - l.amp,
                          dphase(c->phase_rad, l.phase)};
         double e[4] = {c->freq_hz_err, c->gamma_per_s_err, c->amplitude_err, c->phase_rad_err};
         for (int j = 0; j < 4; j++)
@@ -506,6 +508,7 @@ START_TEST(test_error_calibration)
     ck_assert(near(sd_noise / R, sigma, 0.02, 0.0));
     double crb[2];
     crb_single(&l, n, dt, sigma, crb);
+    crb[1] *= 2.0;   /* the bound is for the amplitude rate; Gamma (intensity rate) is twice it */
     const char *name[4] = {"f", "gamma", "amplitude", "phase"};
     for (int j = 0; j < 4; j++) {
         double mean = s.sum[j] / s.count;
@@ -554,7 +557,7 @@ START_TEST(test_error_calibration_real)
         }
         ck_assert_int_eq(cs_pencil_estimate(y, n, 0, dt, &p, &r, NULL), CS_OK);
         const cs_pencil_component *c = r.comp[0].freq_hz > 0 ? &r.comp[0] : &r.comp[1];
-        double dev[4] = {c->freq_hz - f, c->gamma_per_s - g, c->amplitude - A / 2,
+        double dev[4] = {c->freq_hz - f, c->gamma_per_s - 2.0 * g, c->amplitude - A / 2,
                          dphase(c->phase_rad, phi)};
         double e[4] = {c->freq_hz_err, c->gamma_per_s_err, c->amplitude_err, c->phase_rad_err};
         pulls_add(&s, dev, e);

@@ -2,13 +2,14 @@
  * exponentials in a uniformly sampled record.
  *
  * Model. Sample k (k = 0 .. n-1, time t_k = k dt) of the record is taken to be
- *     y_k = sum_{j<M} A_j exp(i phi_j) exp((-Gamma_j + 2 pi i f_j) t_k) + noise
+ *     y_k = sum_{j<M} A_j exp(i phi_j) exp((-Gamma_j / 2 + 2 pi i f_j) t_k) + noise
  * with white noise of equal variance in every sample (in each of I and Q for complex records).
  * f_j is a cyclic frequency in Hz relative to the record's local oscillator (the caller adds the
- * LO); Gamma_j is the amplitude decay rate in s^-1, so the power decays as exp(-2 Gamma t) and the
- * Lorentzian line of that component has FWHM Gamma_j / (2 pi) Hz (cs_pencil_component.fwhm_hz).
+ * LO); Gamma_j is the INTENSITY (population) decay rate in s^-1, the project's convention: the
+ * amplitude decays as exp(-Gamma t / 2), the power as exp(-Gamma t), and the Lorentzian line of
+ * that component has FWHM Gamma_j / (2 pi) Hz (cs_pencil_component.fwhm_hz).
  * Amplitudes and phases refer to the first sample (t = 0); to refer them to a time t0, multiply
- * the complex amplitude by exp((-Gamma + 2 pi i f) t0).
+ * the complex amplitude by exp((-Gamma / 2 + 2 pi i f) t0).
  *
  * Method: the total-least-squares matrix pencil of Y. Hua and T. K. Sarkar, IEEE Trans. Acoust.
  * Speech Signal Process. 38(5), 814-824 (1990), with first-order error propagation. The numerical
@@ -107,8 +108,8 @@ cs_pencil_parameters cs_pencil_default_parameters(void);
 /* One damped exponential. Errors are standard errors (NaN when not computable). */
 typedef struct cs_pencil_component {
     double freq_hz, freq_hz_err;          /* cyclic frequency relative to the LO, Hz */
-    double gamma_per_s, gamma_per_s_err;  /* amplitude decay rate, s^-1 (negative: growing) */
-    double fwhm_hz, fwhm_hz_err;          /* gamma / (2 pi): Lorentzian FWHM of the line, Hz */
+    double gamma_per_s, gamma_per_s_err;  /* intensity decay rate Gamma, s^-1 (negative: growing) */
+    double fwhm_hz, fwhm_hz_err;          /* Gamma / (2 pi): Lorentzian FWHM of the line, Hz */
     double amplitude, amplitude_err;      /* |complex amplitude| at t = 0, sample units */
     double phase_rad, phase_rad_err;      /* its argument at t = 0, in (-pi, pi] */
     double pole_re, pole_im;              /* z = exp((-gamma + 2 pi i f) dt_s) for the input dt */
