@@ -1,0 +1,415 @@
+/* The solver of the gate-aware fit: internal variables, residuals and analytic Jacobian, GSL's
+ * trust region with its convergence tests, and the covariance of the reported parameters.
+ *
+ * Internal variables (u, all of order one; K components, 4 or 5 each in the order of the
+ * reported parameters; start values f0, tau0, t0, a below):
+ *     decay:  f - lo = f0 + u0 / T,              Gamma = e^{u1} / T,
+ *             c_r = a (u2 + i u3)
+ *     burst:  f - lo = f0 + u0 / (pi tau0),      tau = T e^{u1},   t_p - t_g = t0 + tau0 u2,
+ *             c_r = a (u3 + i u4)
+ * with T the gate length and a the largest starting amplitude. c_r is the complex amplitude
+ * with its phase referred to t_g + s_r, s_r the centroid of the component's starting intensity
+ * over the gate (the peak of a burst, about 1/Gamma for a decay starting at the gate):
+ * c = c_r exp(-2 pi i (f - lo) s_r). Referred to t_g instead, a burst 1.6 us into the gate turns
+ * its phase by 2 rad for a 200 kHz change of f, so f and the phase form a curved valley that
+ * took the solver 20+ damped steps in tests; referred to the centroid they are uncorrelated
+ * and the fit takes a handful. The residuals are
+ * (model - data) / s per real component, s a fixed normalisation (sigma when given, else a
+ * robust noise estimate of the gate: 1.4826 MAD of the first differences / sqrt 2 pooled over
+ * I and Q, or the rms of the gate when that is 0), which leaves the minimum unchanged.
+ * Jacobian (analytic): with v = c E the component's value at s = t - t_g,
+ *     dv/du0 = 2 pi i (s - s_r) v x (scale of u0),  decay dv/du1 = -(s/2) Gamma v,
+ *     burst  dv/du1 = z tanh(z) v,  dv/du2 = tanh(z) (tau0/tau) v,  z = (s - (t_p - t_g))/tau,
+ *     dv/d(Re c_r part) = a E_r,  dv/d(Im c_r part) = i a E_r,  E_r = E exp(-2 pi i (f - lo) s_r),
+ * split into real and imaginary rows (real records: real rows only). Each evaluation costs one
+ * exp and one sincos per sample and component.
+ *
+ * Solver: gsl_multifit_nlinear_trust with the Levenberg-Marquardt subproblem (trs_lm), More's
+ * scaling and the QR linear solver (accurate when J is ill-conditioned, and at 4 or 9 columns
+ * its cost is nothing next to the model). A point where the model is not finite (e^{u1}
+ * overflowing) gets huge residuals, so the trust region rejects it. Convergence: an accepted
+ * step with |du_j| <= xtol (1 + |u_j|) for every j; or GSL's gradient test (gtol). Near the
+ * minimum of a noisy gate the damped steps shrink only linearly (by ~30 per iteration in the
+ * tests), and with thousands of residuals the cost stops changing visibly (rounding of a sum of
+ * ~4000 terms) while the steps are still ~1e-6: so once a step is below 1e4 xtol, the undamped
+ * Gauss-Newton step d from the current point is computed (truncated SVD of J) and the fit has
+ * converged when d passes the xtol test; and when GSL gives up (GSL_ENOPROG: 15 rejected trial
+ * steps) the fit has converged if d is below 1e4 xtol, i.e. the minimum is within 1e-6 of a
+ * variable of order one, far inside any statistical error, and not converged otherwise. d is
+ * then applied as a last step unless the cost rises beyond rounding (the same scheme as the
+ * spectrum fitter's, src/fit_solve.c).
+ *
+ * Covariance. At the solution J (in u) has its columns equilibrated to unit norm and
+ * gsl_multifit_nlinear_covar forms (J^T J)^-1 by QR with column pivoting, dropping columns with
+ * |R_kk| <= 1e-10 |R_11|; a dropped column (GSL returns a zero row) marks its variable
+ * undetermined (status SINGULAR, NaN errors for every reported parameter that depends on it; the
+ * others keep theirs). Times sigma^2 / s^2 it is the covariance of u, and the reported covariance
+ * is G C G^T with G = d(reported)/du (block diagonal: center, Gamma or tau, t_peak depend on one
+ * variable each; the amplitude A = |c_r| on the two amplitude variables, dA = (cr dcr + ci dci)/A,
+ * and the phase phi = arg(c_r) - 2 pi (f - lo) s_r on those and u0,
+ * dphi = (cr dci - ci dcr)/A^2 - 2 pi s_r df). First-order, as any least-squares covariance. */
+#include "gatefit_impl.h"
+
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_multifit.h>
+#include <gsl/gsl_multifit_nlinear.h>
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define PI_ 3.14159265358979323846
+#define GF_PENALTY 1e100        /* norm of the residual vector at a non-finite model */
+#define GF_NOPROG_XTOL 1e4      /* steps below this * xtol: "no progress" means converged */
+#define GF_RANK_RTOL 1e-10      /* covariance: column dropped when |R_kk| <= this * |R_11| */
+#define GF_EXP_MAX 700.0        /* e^u beyond this is treated as overflow */
+
+/* ---------------------------------------------------------------- model and Jacobian */
+/* Natural parameters from the internal variables; 0 when an exponential overflows. */
+int cs_gatefit_impl_theta(const gf_fit *F, const double *u, gf_theta *th)
+{
+    int ok = 1;
+    for (size_t k = 0; k < F->P.ncomp; k++) {
+        const double *v = u + F->first[k];
+        th->f[k] = F->f0[k] + F->sf[k] * v[0];
+        if (fabs(v[1]) > GF_EXP_MAX)
+            ok = 0;
+        size_t ia = 2;
+        if (F->P.kind[k] == CS_GATEFIT_DECAY) {
+            th->rate[k] = exp(v[1]) / F->P.T;
+            th->tp[k] = 0.0;
+        } else {
+            th->rate[k] = F->P.T * exp(v[1]);
+            th->tp[k] = F->tp0[k] + F->tau0[k] * v[2];
+            ia = 3;
+        }
+        double ph = -2.0 * PI_ * th->f[k] * F->sref[k];   /* c at t_g from c at t_g + sref */
+        th->c[k] = F->a_ref * (v[ia] + I * v[ia + 1]) * (cos(ph) + I * sin(ph));
+    }
+    return ok;
+}
+
+/* Residuals (res, nres values; may be NULL) and Jacobian (J, nres x np; may be NULL) at u.
+ * Returns 1 when everything is finite. */
+int cs_gatefit_impl_evaluate(gf_fit *F, const double *u, gsl_vector *res, gsl_matrix *J)
+{
+    const gf_problem *P = &F->P;
+    gf_theta th;
+    int ok = cs_gatefit_impl_theta(F, u, &th);
+    const double is = 1.0 / F->s_fit;
+    double complex d[CS_GATEFIT_MAX_COMP * CS_GATEFIT_BURST_NPARAMS], rot[CS_GATEFIT_MAX_COMP];
+    for (size_t k = 0; k < P->ncomp; k++) {
+        double ph = -2.0 * PI_ * th.f[k] * F->sref[k];
+        rot[k] = cos(ph) + I * sin(ph);
+    }
+    for (size_t i = 0; ok && i < P->nused; i++) {
+        size_t j = P->idx[i];
+        double s = (double)j * P->dt;
+        double complex M = 0.0;
+        for (size_t k = 0; k < P->ncomp; k++) {
+            double complex E = cs_gatefit_impl_basis(P->kind[k], th.f[k], th.rate[k], th.tp[k], s);
+            double complex v = th.c[k] * E;
+            M += v;
+            if (!J)
+                continue;
+            double complex *dk = d + F->first[k];
+            double complex Er = rot[k] * E;   /* the basis with the phase at t_g + sref */
+            dk[0] = (2.0 * PI_ * (s - F->sref[k]) * F->sf[k]) * I * v;
+            if (P->kind[k] == CS_GATEFIT_DECAY) {
+                dk[1] = (-0.5 * s * th.rate[k]) * v;
+                dk[2] = F->a_ref * Er;
+                dk[3] = F->a_ref * I * Er;
+            } else {
+                double z = (s - th.tp[k]) / th.rate[k], t = tanh(z);
+                dk[1] = (z * t) * v;
+                dk[2] = (t * F->tau0[k] / th.rate[k]) * v;
+                dk[3] = F->a_ref * Er;
+                dk[4] = F->a_ref * I * Er;
+            }
+        }
+        if (P->cplx) {
+            double rr = (creal(M) - P->x[2 * j]) * is, ri = (cimag(M) - P->x[2 * j + 1]) * is;
+            if (!isfinite(rr) || !isfinite(ri))
+                ok = 0;
+            if (res) {
+                gsl_vector_set(res, 2 * i, rr);
+                gsl_vector_set(res, 2 * i + 1, ri);
+            }
+            for (size_t q = 0; J && q < F->np; q++) {
+                gsl_matrix_set(J, 2 * i, q, creal(d[q]) * is);
+                gsl_matrix_set(J, 2 * i + 1, q, cimag(d[q]) * is);
+            }
+        } else {
+            double rr = (creal(M) - P->x[j]) * is;
+            if (!isfinite(rr))
+                ok = 0;
+            if (res)
+                gsl_vector_set(res, i, rr);
+            for (size_t q = 0; J && q < F->np; q++)
+                gsl_matrix_set(J, i, q, creal(d[q]) * is);
+        }
+    }
+    if (!ok) {
+        if (res)
+            gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
+        if (J)
+            gsl_matrix_set_zero(J);
+    }
+    return ok;
+}
+
+static int cb_f(const gsl_vector *x, void *params, gsl_vector *f)
+{
+    gf_fit *F = params;
+    F->nfev++;
+    if (!cs_gatefit_impl_evaluate(F, x->data, f, NULL))
+        F->last_nan = 1;
+    return GSL_SUCCESS;
+}
+
+static int cb_df(const gsl_vector *x, void *params, gsl_matrix *J)
+{
+    gf_fit *F = params;
+    F->njev++;
+    cs_gatefit_impl_evaluate(F, x->data, NULL, J);
+    return GSL_SUCCESS;
+}
+
+/* |dx_j| <= xtol (1 + |x_j|) for every j. */
+static int small_step(const gsl_vector *x, const gsl_vector *dx, double xtol)
+{
+    for (size_t j = 0; j < x->size; j++)
+        if (!(fabs(gsl_vector_get(dx, j)) <= xtol * (1.0 + fabs(gsl_vector_get(x, j)))))
+            return 0;
+    return 1;
+}
+
+/* The undamped Gauss-Newton step d from u (np values) by least squares on the Jacobian
+ * (truncated SVD, so undetermined directions get no step). Returns 0 when it cannot be formed. */
+static int gauss_newton_step(gf_fit *F, const double *u, gsl_matrix *J, gsl_vector *r, gsl_vector *d,
+                             gsl_matrix *C, gsl_multifit_linear_workspace *lw)
+{
+    if (!cs_gatefit_impl_evaluate(F, u, r, J))
+        return 0;
+    double chisq;
+    size_t rank;
+    if (gsl_multifit_linear_tsvd(J, r, 1e-12, d, C, &chisq, &rank, lw) != GSL_SUCCESS)
+        return 0;
+    gsl_vector_scale(d, -1.0);
+    for (size_t j = 0; j < d->size; j++)
+        if (!isfinite(gsl_vector_get(d, j)))
+            return 0;
+    return 1;
+}
+
+/* Run the trust-region solver from u (np values, updated to the last point reached). */
+int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_gatefit_result *r,
+                          cs_error *err)
+{
+    gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
+    fp.trs = gsl_multifit_nlinear_trs_lm;
+    fp.scale = gsl_multifit_nlinear_scale_more;
+    fp.solver = gsl_multifit_nlinear_solver_qr;
+    gsl_multifit_nlinear_workspace *gw =
+        gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, F->nres, F->np);
+    gsl_matrix *Jg = gsl_matrix_alloc(F->nres, F->np), *Cg = gsl_matrix_alloc(F->np, F->np);
+    gsl_vector *rg = gsl_vector_alloc(F->nres), *dg = gsl_vector_alloc(F->np);
+    gsl_vector *ug = gsl_vector_alloc(F->np);
+    gsl_multifit_linear_workspace *lw = gsl_multifit_linear_alloc(F->nres, F->np);
+    int rc = CS_OK;
+    if (!gw || !Jg || !Cg || !rg || !dg || !ug || !lw) {
+        rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for the solver");
+        goto done;
+    }
+    gsl_multifit_nlinear_fdf fdf;
+    memset(&fdf, 0, sizeof fdf);
+    fdf.f = cb_f;
+    fdf.df = cb_df;
+    fdf.fvv = NULL;
+    fdf.n = F->nres;
+    fdf.p = F->np;
+    fdf.params = F;
+    gsl_vector_view u0 = gsl_vector_view_array(u, F->np);
+    r->status = CS_FIT_NOT_CONVERGED;
+    r->stop = CS_FIT_STOP_NONE;
+    int s = gsl_multifit_nlinear_winit(&u0.vector, NULL, &fdf, gw);
+    size_t iter = 0;
+    if (s != GSL_SUCCESS || F->last_nan) {
+        r->status = CS_FIT_MODEL_NAN;
+        r->stop = CS_FIT_STOP_MODEL_NAN;
+        if (s == GSL_ENOMEM)
+            rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
+        goto done;
+    }
+    int polish = 0;   /* end with the Gauss-Newton step dg */
+    for (;;) {
+        if (iter >= o->max_iter) {
+            r->stop = CS_FIT_STOP_MAX_ITER;
+            break;
+        }
+        F->last_nan = 0;
+        s = gsl_multifit_nlinear_iterate(gw);
+        iter++;
+        if (s == GSL_ENOPROG) {
+            /* the trust region saw no decrease: converged when the Gauss-Newton step that is
+             * left is below 1e4 xtol (far below any statistical error), else stuck */
+            r->stop = CS_FIT_STOP_NO_PROGRESS;
+            if (!F->last_nan && gauss_newton_step(F, gw->x->data, Jg, rg, dg, Cg, lw) &&
+                small_step(gw->x, dg, GF_NOPROG_XTOL * o->xtol)) {
+                r->status = CS_FIT_CONVERGED;
+                polish = 1;
+            } else if (F->last_nan) {
+                r->status = CS_FIT_MODEL_NAN;
+                r->stop = CS_FIT_STOP_MODEL_NAN;
+            }
+            break;
+        }
+        if (s != GSL_SUCCESS) {
+            r->stop = CS_FIT_STOP_NO_PROGRESS;
+            break;
+        }
+        if (small_step(gw->x, gw->dx, o->xtol)) {
+            r->status = CS_FIT_CONVERGED;
+            r->stop = CS_FIT_STOP_SMALL_STEP;
+            break;
+        }
+        /* near the end the damped steps shrink only linearly: look at the full step */
+        if (small_step(gw->x, gw->dx, GF_NOPROG_XTOL * o->xtol) &&
+            gauss_newton_step(F, gw->x->data, Jg, rg, dg, Cg, lw) && small_step(gw->x, dg, o->xtol)) {
+            r->status = CS_FIT_CONVERGED;
+            r->stop = CS_FIT_STOP_SMALL_STEP;
+            polish = 1;
+            break;
+        }
+        int info = 0;
+        if (gsl_multifit_nlinear_test(0.0, o->gtol, 0.0, &info, gw) == GSL_SUCCESS && info == 2) {
+            r->status = CS_FIT_CONVERGED;
+            r->stop = CS_FIT_STOP_SMALL_GRADIENT;
+            break;
+        }
+    }
+    memcpy(u, gw->x->data, F->np * sizeof *u);
+    if (polish) {
+        /* apply the Gauss-Newton step unless the cost rises beyond rounding */
+        double c0 = gsl_blas_dnrm2(gw->f), c1;
+        for (size_t j = 0; j < F->np; j++)
+            gsl_vector_set(ug, j, u[j] + gsl_vector_get(dg, j));
+        if (cs_gatefit_impl_evaluate(F, ug->data, rg, NULL) && (c1 = gsl_blas_dnrm2(rg)) <= c0 * (1.0 + 1e-12))
+            memcpy(u, ug->data, F->np * sizeof *u);
+    }
+    r->niter = iter;
+done:
+    gsl_multifit_linear_free(lw);
+    gsl_vector_free(ug);
+    gsl_vector_free(dg);
+    gsl_vector_free(rg);
+    gsl_matrix_free(Cg);
+    gsl_matrix_free(Jg);
+    gsl_multifit_nlinear_free(gw);
+    return rc;
+}
+
+/* ---------------------------------------------------------------- results */
+
+/* d(reported parameter)/du: up to three (variable, coefficient) pairs per reported parameter. */
+typedef struct gf_grad {
+    size_t n;
+    size_t var[3];
+    double g[3];
+} gf_grad;
+
+static void reported_gradients(const gf_fit *F, const gf_theta *th, gf_grad *G)
+{
+    for (size_t k = 0; k < F->P.ncomp; k++) {
+        size_t b = F->first[k];
+        gf_grad *g = G + b;
+        /* c_r: the amplitude at t_g + sref, the one the variables hold */
+        double ph = 2.0 * PI_ * th->f[k] * F->sref[k];
+        double complex c_r = th->c[k] * (cos(ph) + I * sin(ph));
+        double cr = creal(c_r), ci = cimag(c_r), A2 = cr * cr + ci * ci, A = sqrt(A2);
+        size_t ia = F->P.kind[k] == CS_GATEFIT_DECAY ? 2 : 3;   /* amplitude / phase slots */
+        g[0] = (gf_grad){1, {b, 0, 0}, {F->sf[k], 0, 0}};
+        g[1] = (gf_grad){1, {b + 1, 0, 0}, {th->rate[k], 0, 0}};   /* Gamma or tau: d e^u = e^u du */
+        if (F->P.kind[k] == CS_GATEFIT_BURST)
+            g[2] = (gf_grad){1, {b + 2, 0, 0}, {F->tau0[k], 0, 0}};
+        g[ia] = (gf_grad){2, {b + ia, b + ia + 1, 0}, {F->a_ref * cr / A, F->a_ref * ci / A, 0}};
+        /* phi = arg(c_r) - 2 pi f sref */
+        g[ia + 1] = (gf_grad){3, {b + ia, b + ia + 1, b},
+                              {-F->a_ref * ci / A2, F->a_ref * cr / A2, -2.0 * PI_ * F->sref[k] * F->sf[k]}};
+    }
+}
+
+void cs_gatefit_impl_values(const gf_fit *F, const gf_theta *th, double *val)
+{
+    for (size_t k = 0; k < F->P.ncomp; k++) {
+        double *v = val + F->first[k];
+        v[0] = F->lo + th->f[k];
+        v[1] = th->rate[k];
+        size_t ia = 2;
+        if (F->P.kind[k] == CS_GATEFIT_BURST) {
+            v[2] = F->t_g + th->tp[k];
+            ia = 3;
+        }
+        v[ia] = cabs(th->c[k]);
+        v[ia + 1] = carg(th->c[k]);
+    }
+}
+
+/* Covariance of the reported parameters into r->cov (NaN rows when undetermined); sets
+ * *singular. factor = sigma^2 / s_fit^2. */
+int cs_gatefit_impl_covariance(gf_fit *F, const double *u, const gf_theta *th, double factor,
+                               cs_gatefit_result *r, int *singular, cs_error *err)
+{
+    const size_t np = F->np;
+    gsl_matrix *J = gsl_matrix_alloc(F->nres, np), *C = gsl_matrix_alloc(np, np);
+    double *cn = malloc(np * sizeof *cn);
+    gf_grad *G = malloc(np * sizeof *G);
+    int rc = CS_OK;
+    *singular = 0;
+    if (!J || !C || !cn || !G) {
+        rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for the covariance");
+        goto done;
+    }
+    cs_gatefit_impl_evaluate(F, u, NULL, J);
+    for (size_t q = 0; q < np; q++) {
+        gsl_vector_view col = gsl_matrix_column(J, q);
+        cn[q] = gsl_blas_dnrm2(&col.vector);
+        if (cn[q] > 0)
+            gsl_vector_scale(&col.vector, 1.0 / cn[q]);
+    }
+    if (gsl_multifit_nlinear_covar(J, GF_RANK_RTOL, C) != GSL_SUCCESS) {
+        rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "covariance failed");
+        goto done;
+    }
+    for (size_t a = 0; a < np; a++) {   /* undo the equilibration; mark undetermined variables */
+        int und = !(cn[a] > 0) || !(gsl_matrix_get(C, a, a) > 0);
+        *singular |= und;
+        for (size_t b = 0; b < np; b++) {
+            double v = gsl_matrix_get(C, a, b) / (cn[a] * cn[b]) * factor;
+            gsl_matrix_set(C, a, b, v);
+        }
+        if (und)
+            for (size_t b = 0; b < np; b++) {
+                gsl_matrix_set(C, a, b, NAN);
+                gsl_matrix_set(C, b, a, NAN);
+            }
+    }
+    reported_gradients(F, th, G);
+    for (size_t a = 0; a < np; a++)
+        for (size_t b = 0; b < np; b++) {
+            double s = 0.0;
+            for (size_t i = 0; i < G[a].n; i++)
+                for (size_t j = 0; j < G[b].n; j++)
+                    if (G[a].g[i] != 0 && G[b].g[j] != 0)   /* 0 x NaN: no dependence */
+                        s += G[a].g[i] * G[b].g[j] * gsl_matrix_get(C, G[a].var[i], G[b].var[j]);
+            r->cov[a * np + b] = s;
+        }
+done:
+    free(G);
+    free(cn);
+    gsl_matrix_free(C);
+    gsl_matrix_free(J);
+    return rc;
+}
+
