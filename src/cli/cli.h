@@ -33,6 +33,10 @@ int cmd_fit(int argc, char **argv);
 extern const char *const cmd_fit_usage[];
 int cmd_gate(int argc, char **argv);
 extern const char *const cmd_gate_usage[];
+int cmd_split(int, char **);
+extern const char *const cmd_split_usage[];
+int cmd_predict(int, char **);
+extern const char *const cmd_predict_usage[];
 
 /* Print a command's usage chunks to f. */
 void cli_print_usage(const cli_command *c, FILE *f);

@@ -14,6 +14,8 @@ static const cli_command commands[] = {
      cmd_info_usage},
     {"fit", cmd_fit, "fit line profiles plus a baseline to spectra, with standard errors", cmd_fit_usage},
     {"gate", cmd_gate, "find the burst in time records and compute gated spectra of its eras", cmd_gate_usage},
+    {"split", cmd_split, "fit the burst-era and tail-era lines of time records and their collective shift", cmd_split_usage},
+    {"predict", cmd_predict, "estimate Lorentz-Lorenz and cooperative Lamb shifts, self-broadening, superradiance, trapping", cmd_predict_usage},
 };
 static const size_t ncommands = sizeof commands / sizeof commands[0];
 

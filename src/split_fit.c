@@ -1,0 +1,587 @@
+/* Era fits of the split pipeline (split.h): gate-aware fits through a gate, plain profiles on
+ * gated power spectra, the whole-record estimate, the matrix pencil and their agreement.
+ *
+ * The whole-record spectrum uses a RECTANGULAR window by default. A record of this kind starts
+ * in the noise (before the burst) and ends in the noise (after the tail has faded), so the
+ * signal is not truncated and a rectangular window leaks nothing. A taper instead multiplies the
+ * signal by a slowly varying weight: for a hann window over a record whose burst sits near its
+ * start the weight rises roughly as t^2 across the tail, which slows the tail's apparent decay
+ * and narrows its line (on the bundled demo record the tail's line is no longer found), and it
+ * weights the burst down by more than an order of magnitude. A taper is still available
+ * (whole_window).
+ *
+ * The gate-aware fits' noise level is by default the fit's own residual scatter (gatefit.h):
+ * an early gate that also holds part of the tail, which the burst model does not describe,
+ * then gets correspondingly larger errors instead of errors that pretend the model is exact. */
+#include "split_impl.h"
+
+#include <collshift/profile.h>
+
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Most weighted passes of a plain fit of a spectrum (see plain_fit). */
+#define SPLIT_PASSES 4
+
+/* ---------------------------------------------------------------- shared helpers */
+
+void cs_split_impl_fit_fail(cs_split_fit *f, cs_split_status st, const char *fmt, ...)
+{
+    f->status = st;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(f->message, sizeof f->message, fmt, ap);
+    va_end(ap);
+    cs_split_impl_line_nan(&f->line);
+}
+
+/* sqrt(2 ln(m / p)): the significance that noise alone reaches with probability ~ p among m
+ * trial frequencies (see split.h). */
+double cs_split_impl_min_significance(size_t m, double fap)
+{
+    double mm = m > 1 ? (double)m : 2.0;
+    return sqrt(2.0 * log(mm / fap));
+}
+
+void cs_split_impl_set_shift(cs_split_line *l, double ref_hz)
+{
+    if (l->ok && isfinite(ref_hz)) {
+        l->shift_hz = l->center_hz - ref_hz;
+        l->shift_hz_err = l->center_hz_err;
+    } else {
+        l->shift_hz = l->shift_hz_err = NAN;
+    }
+}
+
+/* ---------------------------------------------------------------- gate-aware era fits */
+
+/* Energy of component c of r (see split.h) and its standard error. */
+static void gatefit_energy(const cs_gatefit_result *r, const cs_gatefit_component *c, double *E, double *Eerr)
+{
+    const size_t np = r->nparams;
+    double half = r->is_complex ? 1.0 : 0.5, A = c->amplitude;
+    size_t ia, ir;
+    double e, gr;
+    if (c->kind == CS_GATEFIT_DECAY) {
+        ia = c->first + 2;
+        ir = c->first + 1;
+        e = half * A * A / c->gamma_per_s;
+        gr = -e / c->gamma_per_s;
+    } else {
+        ia = c->first + 3;
+        ir = c->first + 1;
+        e = half * 2.0 * A * A * c->tau_s;
+        gr = e / c->tau_s;
+    }
+    double ga = A != 0 ? 2.0 * e / A : 0.0;
+    double v = ga * ga * r->cov[ia * np + ia] + gr * gr * r->cov[ir * np + ir] + 2.0 * ga * gr * r->cov[ia * np + ir];
+    *E = e;
+    *Eerr = v >= 0 ? sqrt(v) : NAN;
+}
+
+static int gatefit_era(const split_ctx *cx, const cs_record *rec, cs_split_era era, const cs_gate *g,
+                       const char *model, double lo_hz, double ref_hz, double floor_sd,
+                       const cs_gatefit_result *from, cs_split_fit *f, cs_error *err)
+{
+    const cs_split_params *p = cx->p;
+    cs_gatefit_options o;
+    cs_gatefit_options_default(&o);
+    cs_gatefit_start st[CS_GATEFIT_MAX_COMP];
+    if (from && from->ncomp <= CS_GATEFIT_MAX_COMP) {
+        for (size_t k = 0; k < from->ncomp; k++) {
+            const cs_gatefit_component *c = &from->comp[k];
+            cs_gatefit_start_init(&st[k]);
+            st[k].center_hz = c->center_hz;
+            if (c->kind == CS_GATEFIT_DECAY) {
+                st[k].gamma_per_s = c->gamma_per_s;
+            } else {
+                st[k].tau_s = c->tau_s;
+                st[k].t_peak_s = c->t_peak_s;
+            }
+        }
+        o.start = st;
+        o.nstart = from->ncomp;
+    }
+    o.noise = p->noise;
+    if (p->noise == CS_GATEFIT_NOISE_GIVEN) {
+        o.noise_sd = p->noise_sd > 0 ? p->noise_sd : floor_sd;
+        if (!(o.noise_sd > 0)) {
+            cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "gate '%s': the record's noise floor is zero or unknown", g->name);
+            return CS_OK;
+        }
+    }
+    cs_error e2;
+    cs_error_clear(&e2);
+    int rc = cs_gatefit_run(cx->ws, rec, g, model, lo_hz, &o, &f->gfit, &e2);
+    if (rc == CS_ENOMEM || rc == CS_EUNSUP || rc == CS_EINVAL) {
+        if (err)
+            *err = e2;
+        return rc;
+    }
+    if (rc == CS_ERANGE) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NO_GATE, "gate '%s': %s", g->name, e2.msg);
+        return CS_OK;
+    }
+    if (rc == CS_EDATA) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "gate '%s': %s", g->name, e2.msg);
+        return CS_OK;
+    }
+    const cs_gatefit_result *r = f->gfit;
+    if (!r) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "gate '%s': %s", g->name, e2.msg);
+        return CS_OK;
+    }
+    f->first = r->first;
+    f->m = r->m;
+    f->nshots = 1;
+    if (rc == CS_ENOCONV) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NOT_CONVERGED, "%s", e2.msg);
+        return CS_OK;
+    }
+    /* the era's component: preferred kind, largest energy */
+    cs_gatefit_kind want = era == CS_SPLIT_BURST ? CS_GATEFIT_BURST : CS_GATEFIT_DECAY;
+    int have_want = 0;
+    for (size_t k = 0; k < r->ncomp; k++)
+        have_want |= r->comp[k].kind == want;
+    size_t best = 0;
+    double bestE = -INFINITY, E = NAN, Eerr = NAN;
+    for (size_t k = 0; k < r->ncomp; k++) {
+        if (have_want && r->comp[k].kind != want)
+            continue;
+        double ek, eke;
+        gatefit_energy(r, &r->comp[k], &ek, &eke);
+        if (bestE == -INFINITY || (isfinite(ek) && ek > bestE)) {
+            best = k;
+            bestE = isfinite(ek) ? ek : bestE;
+            E = ek;
+            Eerr = eke;
+        }
+    }
+    const cs_gatefit_component *c = &r->comp[best];
+    f->component = best;
+    f->significance = c->amplitude_err > 0 ? c->amplitude / c->amplitude_err : NAN;
+    f->significance_min = cs_split_impl_min_significance(r->nused, p->detect_fap);
+    if (isfinite(f->significance) && f->significance < f->significance_min) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NO_LINE, "gate '%s': no line above the noise (amplitude/error %.3g < %.3g)", g->name,
+                 f->significance, f->significance_min);
+        return CS_OK;
+    }
+    if (!isfinite(c->center_hz_err) || !isfinite(c->fwhm_hz_err) || !isfinite(f->significance)) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NOT_CONVERGED, "gate '%s': the fit of '%s' leaves the line's errors undetermined", g->name,
+                 model);
+        return CS_OK;
+    }
+    cs_split_line *l = &f->line;
+    l->ok = 1;
+    l->center_hz = c->center_hz;
+    l->center_hz_err = c->center_hz_err;
+    l->fwhm_hz = c->fwhm_hz;
+    l->fwhm_hz_err = c->fwhm_hz_err;
+    l->area = E;
+    l->area_err = Eerr;
+    cs_split_impl_set_shift(l, ref_hz);
+    f->status = CS_SPLIT_OK;
+    f->message[0] = '\0';
+    return CS_OK;
+}
+
+/* ---------------------------------------------------------------- plain fits of spectra */
+
+/* Fit `model` plus the floor to a gated PSD in two passes (split.h), errors scaled by
+ * sqrt(enbw/df). Leaves the fit in f->pmodel, f->pfit and sets the spectrum fields; the status
+ * is set to OK or a failure (the caller then chooses the component). */
+static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, cs_split_fit *f,
+                     cs_error *err)
+{
+    const cs_spectrum *s = gs->psd;
+    const size_t n = s->n;
+    f->fmin_hz = s->freq_hz[0];
+    f->fmax_hz = s->freq_hz[n - 1];
+    f->nfft = gs->nfft;
+    f->nshots = gs->nshots;
+    f->df_hz = gs->df_hz;
+    f->enbw_hz = gs->enbw_hz;
+    f->err_scale = sqrt(gs->enbw_hz / gs->df_hz);
+    f->energy_scale = gs->dt_s * gs->sum_w2;
+    f->first = gs->first;
+    f->m = gs->m;
+    cs_error e2;
+    cs_error_clear(&e2);
+    f->pmodel = cs_model_alloc(model, cx->p->baseline, CS_MODEL_SUM, &e2);
+    if (!f->pmodel) {
+        if (err)
+            *err = e2;
+        return e2.code ? e2.code : CS_ENOMEM;
+    }
+    cs_fit_parameters par = cs_fit_default_parameters();
+    par.weighting = CS_WEIGHT_NOISE;
+    cs_fit_result *r1 = NULL;
+    int rc = cs_fit_run(NULL, f->pmodel, s->freq_hz, s->y, NULL, NULL, n, &par, &r1, &e2);
+    if (!r1) {
+        if (rc == CS_ENOMEM) {
+            if (err)
+                *err = e2;
+            return rc;
+        }
+        cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "gate '%s': %s", gs->gate.name, e2.msg);
+        return CS_OK;
+    }
+    if (rc != CS_OK) {
+        f->pfit = r1;
+        cs_split_impl_fit_fail(f, CS_SPLIT_NOT_CONVERGED, "gate '%s': fit of '%s' to the gated spectrum did not converge",
+                 gs->gate.name, model);
+        return CS_OK;
+    }
+    cs_fit_result_free(r1);
+    /* weighted passes: the variance of a periodogram bin of a line plus white noise, with F the
+       noise floor (the fitted baseline) and S the line's part (model - floor), is F^2 + 2 F S
+       (the noncentral chi-square of two degrees of freedom), divided by the number of shots of a
+       power average. The floor of the equal-weight pass can be far off when a strong line
+       dominates the residuals, so the weights are renewed from each pass's model, up to
+       SPLIT_PASSES times, until the floor settles within 1 %. */
+    const size_t np = f->pmodel->nparams;
+    double *pv = malloc(np * sizeof *pv), *sig = malloc(n * sizeof *sig), *base = malloc(n * sizeof *base);
+    if (!pv || !sig || !base) {
+        free(pv);
+        free(sig);
+        free(base);
+        return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
+    }
+    double kshots = gs->nshots > 1 ? (double)gs->nshots : 1.0, prev_floor = NAN;
+    par.guess = 0;
+    par.weighting = CS_WEIGHT_SIGMA;
+    for (int pass = 0; pass < SPLIT_PASSES; pass++) {
+        cs_model_get_values(f->pmodel, pv);
+        cs_model_eval(f->pmodel, pv, s->freq_hz, n, sig, NULL);
+        for (size_t k = 0; k < f->pmodel->ncomp; k++) {   /* the floor alone: every area 0 */
+            const cs_model_component *mc = &f->pmodel->comp[k];
+            pv[mc->first + mc->type->nparams - 1] = 0.0;
+        }
+        cs_model_eval(f->pmodel, pv, s->freq_hz, n, base, NULL);
+        double top = 0.0, floor_mid = base[n / 2];
+        for (size_t i = 0; i < n; i++)
+            top = fmax(top, fabs(sig[i]));
+        if (pass > 0 && fabs(floor_mid - prev_floor) <= 0.01 * fabs(prev_floor))
+            break;
+        prev_floor = floor_mid;
+        for (size_t i = 0; i < n; i++) {
+            double F = base[i], S = fmax(sig[i] - base[i], 0.0);
+            double v = F > 0 ? F * F + 2.0 * F * S : sig[i] * sig[i];   /* no floor: exponential scatter */
+            sig[i] = fmax(sqrt(v / kshots), 1e-6 * top);
+        }
+        cs_fit_result *next = NULL;
+        rc = cs_fit_run(NULL, f->pmodel, s->freq_hz, s->y, sig, NULL, n, &par, &next, &e2);
+        if (!f->pfit && next && rc == CS_ENOCONV && next->stop == CS_FIT_STOP_NO_PROGRESS) {
+            /* the trust region stalled next to the equal-weight optimum: once more from the
+               automatic starting values under the same weights */
+            cs_fit_result_free(next);
+            next = NULL;
+            par.guess = 1;
+            rc = cs_fit_run(NULL, f->pmodel, s->freq_hz, s->y, sig, NULL, n, &par, &next, &e2);
+            par.guess = 0;
+        }
+        if (f->pfit && (!next || rc != CS_OK)) {
+            /* a renewed pass that cannot move from where the previous one converged (the
+               trust region reports no progress): keep the previous pass */
+            cs_fit_result_free(next);
+            cs_model_set_values(f->pmodel, f->pfit->value);
+            rc = CS_OK;
+            break;
+        }
+        cs_fit_result_free(f->pfit);
+        f->pfit = next;
+        if (!next || rc != CS_OK)
+            break;
+    }
+    free(pv);
+    free(base);
+    free(sig);
+    if (!f->pfit) {
+        if (rc == CS_ENOMEM) {
+            if (err)
+                *err = e2;
+            return rc;
+        }
+        cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "gate '%s': %s", gs->gate.name, e2.msg);
+        return CS_OK;
+    }
+    if (rc != CS_OK) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NOT_CONVERGED, "gate '%s': fit of '%s' to the gated spectrum did not converge",
+                 gs->gate.name, model);
+        return CS_OK;
+    }
+    /* correlated bins: scale every error (and the covariance) by sqrt(enbw / df); and when the
+       profiles do not describe the spectrum (chi2/dof > 1 with these weights) by sqrt(chi2/dof)
+       too, so that a misfit widens the errors instead of hiding (common practice) */
+    cs_fit_result *r = f->pfit;
+    if (r->redchi2 > 1 && isfinite(r->redchi2)) {
+        f->err_scale *= sqrt(r->redchi2);
+        r->errors_scaled = 1;
+    }
+    double sc = f->err_scale, sc2 = sc * sc;
+    for (size_t i = 0; i < r->nparams; i++)
+        r->err[i] *= sc;
+    for (size_t i = 0; i < r->nparams * r->nparams; i++)
+        r->cov[i] *= sc2;
+    for (size_t c = 0; c < r->ncomp; c++)
+        for (int q = 0; q < CS_PROFILE_NQTY; q++)
+            r->derived[c].err[q] *= sc;
+    f->status = CS_SPLIT_OK;
+    return CS_OK;
+}
+
+/* Fill line from component c of a successful plain fit. */
+static void plain_line(const cs_split_fit *f, size_t c, double ref_hz, cs_split_line *l)
+{
+    const cs_model *m = f->pmodel;
+    const cs_fit_result *r = f->pfit;
+    const cs_model_component *mc = &m->comp[c];
+    size_t ai = mc->first + mc->type->nparams - 1;
+    l->center_hz = r->value[mc->first];
+    l->center_hz_err = r->err[mc->first];
+    l->fwhm_hz = r->derived[c].value[CS_PROFILE_FWHM];
+    l->fwhm_hz_err = r->derived[c].err[CS_PROFILE_FWHM];
+    l->area = r->value[ai] * f->energy_scale;
+    l->area_err = r->err[ai] * f->energy_scale;
+    l->ok = isfinite(l->center_hz) && isfinite(l->center_hz_err) && isfinite(l->fwhm_hz) &&
+            isfinite(l->fwhm_hz_err);
+    if (!l->ok)
+        cs_split_impl_line_nan(l);
+    cs_split_impl_set_shift(l, ref_hz);
+}
+
+/* Significance check of component c of a plain fit; 1 when it passes (else f is marked). */
+static int plain_significant(cs_split_fit *f, size_t c)
+{
+    const cs_model_component *mc = &f->pmodel->comp[c];
+    size_t ai = mc->first + mc->type->nparams - 1;
+    double a = f->pfit->value[ai], ae = f->pfit->err[ai];
+    f->significance = ae > 0 ? a / ae : NAN;
+    if (isfinite(f->significance) && f->significance < f->significance_min) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NO_LINE, "gate '%s': no line above the noise (area/error %.3g < %.3g)", f->gate.name,
+                 f->significance, f->significance_min);
+        return 0;
+    }
+    return 1;
+}
+
+static int plain_era(const split_ctx *cx, const cs_record *rec, cs_record *const *shots, size_t nshots,
+                     cs_split_era era, const cs_gate *g, const char *model, double lo_hz, double ref_hz,
+                     cs_split_fit *f, cs_error *err)
+{
+    cs_gate_options go;
+    cs_gate_options_default(&go);
+    go.pad = cx->p->pad;
+    go.lo_hz = lo_hz;
+    go.keep_complex = 0;
+    go.average = CS_GATE_AVERAGE_POWER;
+    cs_gated_spectrum *gs = NULL;
+    cs_error e2;
+    cs_error_clear(&e2);
+    int rc = nshots > 1 ? cs_gate_spectrum_shots(cx->ws, shots, nshots, g, &go, &gs, &e2)
+                        : cs_gate_spectrum(cx->ws, rec, g, &go, &gs, &e2);
+    if (rc == CS_ERANGE) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NO_GATE, "gate '%s': %s", g->name, e2.msg);
+        return CS_OK;
+    }
+    if (rc != CS_OK) {
+        if (err)
+            *err = e2;
+        return rc;
+    }
+    rc = plain_fit(cx, gs, model, f, err);
+    cs_gated_spectrum_free(gs);
+    if (rc != CS_OK || f->status != CS_SPLIT_OK)
+        return rc;
+    /* the era's component: preferred profile, largest area */
+    const char *want = era == CS_SPLIT_BURST ? "sech2" : "lorentz";
+    const cs_model *m = f->pmodel;
+    int have_want = 0;
+    for (size_t k = 0; k < m->ncomp; k++)
+        have_want |= strcmp(m->comp[k].type->name, want) == 0;
+    size_t best = 0;
+    double bestA = -INFINITY;
+    for (size_t k = 0; k < m->ncomp; k++) {
+        if (have_want && strcmp(m->comp[k].type->name, want) != 0)
+            continue;
+        double a = f->pfit->value[m->comp[k].first + m->comp[k].type->nparams - 1];
+        if (bestA == -INFINITY || a > bestA) {
+            best = k;
+            bestA = a;
+        }
+    }
+    f->component = best;
+    f->significance_min = cs_split_impl_min_significance(f->m, cx->p->detect_fap);
+    if (!plain_significant(f, best))
+        return CS_OK;
+    plain_line(f, best, ref_hz, &f->line);
+    if (!f->line.ok)
+        cs_split_impl_fit_fail(f, CS_SPLIT_NOT_CONVERGED, "gate '%s': the fit of '%s' leaves the line's errors undetermined",
+                 g->name, model);
+    return CS_OK;
+}
+
+int cs_split_impl_fit_era(const split_ctx *cx, const cs_record *rec, cs_record *const *shots, size_t nshots,
+                          cs_split_era era, const cs_gate *g, const char *model, int gate_aware, double lo_hz,
+                          double ref_hz, double noise_floor_sd, const cs_gatefit_result *from, cs_split_fit *f,
+                          cs_error *err)
+{
+    cs_split_impl_fit_release(f);
+    f->status = CS_SPLIT_FAILED;
+    f->message[0] = '\0';
+    cs_split_impl_line_nan(&f->line);
+    f->significance = f->significance_min = NAN;
+    f->gate_aware = gate_aware;
+    snprintf(f->model, sizeof f->model, "%s", model);
+    f->gate = *g;
+    f->gate_ok = 1;
+    if (gate_aware)
+        return gatefit_era(cx, rec, era, g, model, lo_hz, ref_hz, noise_floor_sd, from, f, err);
+    return plain_era(cx, rec, shots, nshots, era, g, model, lo_hz, ref_hz, f, err);
+}
+
+/* ---------------------------------------------------------------- independent estimates */
+
+int cs_split_impl_whole(const split_ctx *cx, const cs_record *rec, cs_record *const *shots, size_t nshots,
+                        cs_split_shot *sh, cs_error *err)
+{
+    const cs_split_params *p = cx->p;
+    cs_split_fit *f = &sh->whole;
+    for (int e = 0; e < CS_SPLIT_NERA; e++)
+        cs_split_impl_line_nan(&sh->whole_line[e]);
+    if (!p->whole_model || !*p->whole_model) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_NO_GATE, "whole-record estimate switched off");
+        return CS_OK;
+    }
+    snprintf(f->model, sizeof f->model, "%s", p->whole_model);
+    char wb[CS_WINDOW_SPEC_MAX];
+    snprintf(f->spec, sizeof f->spec, "whole=0s:rest:%s", cs_window_format(&p->whole_window, wb, sizeof wb));
+    cs_error e2;
+    if (cs_gate_init(&f->gate, "whole", 0.0, (double)rec->n * rec->dt_s, &p->whole_window, CS_WINDOW_PERIODIC,
+                     &e2) != CS_OK) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "whole record: %s", e2.msg);
+        return CS_OK;
+    }
+    f->gate.t_start_s = rec->t0_s;
+    f->gate_ok = 1;
+    cs_gate_options go;
+    cs_gate_options_default(&go);
+    go.pad = p->pad;
+    go.lo_hz = sh->lo_hz;
+    go.keep_complex = 0;
+    cs_gated_spectrum *gs = NULL;
+    int rc = nshots > 1 ? cs_gate_spectrum_shots(cx->ws, shots, nshots, &f->gate, &go, &gs, &e2)
+                        : cs_gate_spectrum(cx->ws, rec, &f->gate, &go, &gs, &e2);
+    if (rc == CS_ERANGE || rc == CS_EDATA) {
+        cs_split_impl_fit_fail(f, CS_SPLIT_FAILED, "whole record: %s", e2.msg);
+        return CS_OK;
+    }
+    if (rc != CS_OK) {
+        if (err)
+            *err = e2;
+        return rc;
+    }
+    rc = plain_fit(cx, gs, p->whole_model, f, err);
+    cs_gated_spectrum_free(gs);
+    if (rc != CS_OK || f->status != CS_SPLIT_OK)
+        return rc;
+    /* broadest component: burst era; narrowest: tail era */
+    const cs_model *m = f->pmodel;
+    size_t ib = 0, it = 0;
+    for (size_t k = 1; k < m->ncomp; k++) {
+        double w = f->pfit->derived[k].value[CS_PROFILE_FWHM];
+        if (w > f->pfit->derived[ib].value[CS_PROFILE_FWHM])
+            ib = k;
+        if (w < f->pfit->derived[it].value[CS_PROFILE_FWHM])
+            it = k;
+    }
+    f->significance_min = cs_split_impl_min_significance(rec->n, p->detect_fap);
+    size_t idx[CS_SPLIT_NERA] = {ib, it};
+    for (int e = 0; e < CS_SPLIT_NERA; e++) {
+        const cs_model_component *mc = &m->comp[idx[e]];
+        size_t ai = mc->first + mc->type->nparams - 1;
+        double a = f->pfit->value[ai], ae = f->pfit->err[ai];
+        if (ae > 0 && a / ae >= f->significance_min)
+            plain_line(f, idx[e], sh->ref_hz, &sh->whole_line[e]);
+    }
+    f->component = it;
+    f->line = sh->whole_line[CS_SPLIT_TAIL];
+    return CS_OK;
+}
+
+/* Matrix pencil of the tail gate's samples up to the fade of the envelope. */
+int cs_split_impl_pencil(const cs_record *rec, cs_split_shot *sh, cs_error *err)
+{
+    sh->npencil = 0;
+    sh->pencil_order = 0;
+    sh->pencil_first = sh->pencil_count = 0;
+    for (int k = 0; k < CS_SPLIT_PENCIL_MAX; k++)
+        cs_split_impl_line_nan(&sh->pencil[k]);
+    const cs_split_fit *tf = &sh->era[CS_SPLIT_TAIL];
+    size_t first, count;
+    if (!tf->gate_ok || cs_gate_samples(&tf->gate, rec, &first, &count, NULL) != CS_OK) {
+        sh->pencil_status = CS_ERANGE;
+        return CS_OK;
+    }
+    /* samples after the envelope has faded into the noise add nothing but noise */
+    if (sh->burst.status == CS_BURST_FOUND && isfinite(sh->burst.fade_s)) {
+        double tf_s = (sh->burst.fade_s - rec->t0_s) / rec->dt_s;
+        if (tf_s > (double)first && tf_s < (double)(first + count))
+            count = (size_t)tf_s - first + 1;
+    }
+    sh->pencil_first = first;
+    sh->pencil_count = count;
+    if (count < 16) {
+        sh->pencil_status = CS_EDATA;
+        return CS_OK;
+    }
+    cs_pencil_parameters pp = cs_pencil_default_parameters();
+    cs_pencil_result pr;
+    cs_pencil_result_init(&pr);
+    const double *x = rec->data + (rec->is_complex ? 2 * first : first);
+    cs_error e2;
+    int rc = cs_pencil_estimate(x, count, rec->is_complex, rec->dt_s, &pp, &pr, &e2);
+    if (rc == CS_ENOMEM) {
+        if (err)
+            *err = e2;
+        return rc;
+    }
+    sh->pencil_status = rc;
+    if (rc == CS_OK || rc == CS_ENOCONV) {
+        sh->pencil_order = pr.order;
+        for (size_t k = 0; k < pr.order && sh->npencil < CS_SPLIT_PENCIL_MAX; k++) {
+            const cs_pencil_component *c = &pr.comp[k];
+            if (!rec->is_complex && c->freq_hz < 0)
+                continue;  /* real records: components come in +- pairs */
+            if (!(c->gamma_per_s > 0))
+                continue;  /* growing: part of a shape, not a line */
+            cs_split_line *l = &sh->pencil[sh->npencil++];
+            if (isfinite(c->freq_hz_err) && isfinite(c->fwhm_hz_err)) {
+                l->ok = 1;
+                l->center_hz = c->freq_hz + sh->lo_hz;
+                l->center_hz_err = c->freq_hz_err;
+                l->fwhm_hz = c->fwhm_hz;
+                l->fwhm_hz_err = c->fwhm_hz_err;
+            }
+            cs_split_impl_set_shift(l, sh->ref_hz);
+        }
+        if (sh->npencil == 0)
+            sh->pencil_status = CS_EDATA;
+    }
+    cs_pencil_result_release(&pr);
+    return CS_OK;
+}
+
+void cs_split_impl_agree(const cs_split_line *a, const cs_split_line *b, double thr, cs_split_agree *g)
+{
+    g->z_center = g->z_fwhm = NAN;
+    g->flagged = 0;
+    if (!a->ok || !b->ok)
+        return;
+    g->z_center = cs_split_agreement(a->center_hz, a->center_hz_err, b->center_hz, b->center_hz_err);
+    g->z_fwhm = cs_split_agreement(a->fwhm_hz, a->fwhm_hz_err, b->fwhm_hz, b->fwhm_hz_err);
+    g->flagged = (isfinite(g->z_center) && g->z_center > thr) || (isfinite(g->z_fwhm) && g->z_fwhm > thr);
+}
