@@ -37,6 +37,18 @@ head = [l for l in open(sys.argv[2] + "/sg.csv") if not l.startswith("#")][0].st
 assert head == "time_s,frequency_hz,psd", head
 PY
 
+# gate-aware fit of the tail through a Hann gate: unbiased by the window (true values above)
+expect_code 0 "$CS_BIN" gate "$R" --gate "late=1.5us:6us:hann" --fit decay --json "$TMP/gf.json"
+python3 - "$TMP/gf.json" <<'PY' && ok || bad "gate-aware decay fit"
+import json, sys
+f = json.load(open(sys.argv[1]))["files"][0]
+fit = f["gates"][0]["fit"]; c = fit["components"][0]
+assert fit["status"] == "converged" and c["profile"] == "decay", fit
+assert abs(c["center_hz"] - f["lo_hz"] - 205e6) < 5 * c["center_hz_err"], c
+assert abs(c["fwhm_hz"] - 1.5e6) < 5 * c["fwhm_hz_err"], c
+PY
+expect_code 2 "$CS_BIN" gate "$R" --fit decay+lorentz;          expect_in "$TMP/err" "cannot be mixed"
+
 # the same record as raw interleaved float64 I/Q and as complex128 .npy
 python3 - "$R" "$TMP/r.cf64" "$TMP/r.npy" <<'PY'
 import struct, sys
