@@ -37,6 +37,8 @@ int cmd_split(int, char **);
 extern const char *const cmd_split_usage[];
 int cmd_predict(int, char **);
 extern const char *const cmd_predict_usage[];
+int cmd_series(int, char **);
+extern const char *const cmd_series_usage[];
 
 /* Print a command's usage chunks to f. */
 void cli_print_usage(const cli_command *c, FILE *f);

@@ -16,6 +16,7 @@ static const cli_command commands[] = {
     {"gate", cmd_gate, "find the burst in time records and compute gated spectra of its eras", cmd_gate_usage},
     {"split", cmd_split, "fit the burst-era and tail-era lines of time records and their collective shift", cmd_split_usage},
     {"predict", cmd_predict, "estimate Lorentz-Lorenz and cooperative Lamb shifts, self-broadening, superradiance, trapping", cmd_predict_usage},
+    {"series", cmd_series, "analyse a campaign of files at known densities: slopes of shift and width, theory", cmd_series_usage},
 };
 static const size_t ncommands = sizeof commands / sizeof commands[0];
 

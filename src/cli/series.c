@@ -1,0 +1,241 @@
+/* `collshift series`: a campaign of files at known densities, slopes against density, theory. */
+#include "cli.h"
+#include "series_out.h"
+
+#include <collshift/report.h>
+#include <collshift/series.h>
+#include <collshift/theory.h>
+
+#include <errno.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+const char *const cmd_series_usage[] = {
+    "usage: collshift series MANIFEST [--line NAME] [--threads N] [--json FILE] [--table FILE] [options]\n"
+    "\n"
+    "Analyses every file of a measurement campaign and fits straight lines against density: the\n"
+    "centre (the shift, when every file has a reference frequency) and the FWHM of each era, by\n"
+    "weighted least squares (GSL gsl_fit_wlinear, weights 1/error^2). Slopes are in Hz cm^3 (Hz per\n"
+    "cm^-3), intercepts in Hz. With --line the slopes are compared with the Lorentz-Lorenz shift, the\n"
+    "slab LL + cooperative Lamb shift (with a thickness) and the self-broadening coefficient, as the\n"
+    "ratio measured/theory and the difference in standard errors (measured - theory)/error.\n"
+    "\n"
+    "The manifest is CSV with a header row: 'file' (relative to the manifest's folder) and\n"
+    "'density' (unit in the header, density_cm^-3, or in the value, 3e13 cm^-3); optional columns\n"
+    "temperature (180 degC), thickness (250 nm), shot (0-based), era (burst or tail: the file\n"
+    "measures that era only) and reference (9.1 GHz). Without a density the file's 'density'\n"
+    "metadata is used, or the vapour density at the manifest's or the file's temperature\n"
+    "(Alcock et al. 1984, with --element or the line's element). Reference: the manifest, else\n"
+    "--ref, else the file's 'reference' metadata.\n"
+    "\n"
+    "Time records are analysed as by 'collshift split' (burst era and tail era; several shots are\n"
+    "combined by their weighted mean). Spectra are fitted as by 'collshift fit' with --model: the\n"
+    "BROADEST component is taken as the burst era's line and the NARROWEST as the tail era's (a\n"
+    "one-component model gives the tail era, or the era of the manifest's 'era' column).\n"
+    "\n",
+    "Options:\n"
+    "  --line NAME           compare with the estimates for this line (see 'collshift predict')\n"
+    "  --thickness LENGTH    slab thickness for the LL + CLS estimate (default: the manifest's\n"
+    "                        thickness when every row gives the same one)\n"
+    "  --element EL          element of the vapour-pressure formula (Rb Cs K Na)\n"
+    "  --threads N           analyse N entries at a time (OpenMP; default 1); results do not\n"
+    "                        depend on N\n"
+    "  --model LIST          plain model of spectra (default lorentz+lorentz)\n"
+    "  --baseline KIND       baseline of spectra: none const linear quad cubic exp (default linear)\n"
+    "  --ref FREQ            reference frequency for shifts\n"
+    "  --gate early=SPEC     records: the burst era's gate (as for 'split'); also late=SPEC\n"
+    "  --burst-model LIST    records: burst-era model (default burst)\n"
+    "  --tail-model LIST     records: tail-era model (default decay)\n"
+    "  --through-origin      fit y = slope x density (no intercept; gsl_fit_wmul)\n"
+    "  --inflate             multiply the slope errors by sqrt(chi2/dof) when chi2/dof > 1 (noted)\n"
+    "\n"
+    "Output:\n"
+    "  --json FILE           entries, regressions and theory as JSON ('-' for standard output)\n"
+    "  --table FILE          CSV, one row per entry and era sorted by density: density_cm3, era,\n"
+    "                        file, status, center_hz, shift_hz, fwhm_hz, area and their errors\n"
+    "  --quiet               no summary on standard output\n"
+    "A progress line is shown on standard error when it is a terminal.\n"
+    "\n",
+    CLI_LOAD_OPTIONS_HELP,
+    "\n"
+    "Conventions: " CS_THEORY_CONVENTIONS ".\n"
+    "Exit codes: 0 every entry measured; 1 some entry failed or was only partly measured (it is\n"
+    "marked, the others are reported and fitted); 2 usage; 3 the manifest cannot be used.\n",
+    NULL,
+};
+
+enum {
+    O_LINE = 1, O_THICK, O_ELEMENT, O_THREADS, O_MODEL, O_BASELINE, O_REF, O_GATE, O_BURST_MODEL,
+    O_TAIL_MODEL, O_ORIGIN, O_INFLATE, O_JSON, O_TABLE, O_QUIET
+};
+
+static int parse_args(int argc, char **argv, series_opts *so)
+{
+    static const struct option own[] = {
+        {"line", required_argument, NULL, O_LINE},
+        {"thickness", required_argument, NULL, O_THICK},
+        {"element", required_argument, NULL, O_ELEMENT},
+        {"threads", required_argument, NULL, O_THREADS},
+        {"model", required_argument, NULL, O_MODEL},
+        {"baseline", required_argument, NULL, O_BASELINE},
+        {"ref", required_argument, NULL, O_REF},
+        {"gate", required_argument, NULL, O_GATE},
+        {"burst-model", required_argument, NULL, O_BURST_MODEL},
+        {"tail-model", required_argument, NULL, O_TAIL_MODEL},
+        {"through-origin", no_argument, NULL, O_ORIGIN},
+        {"inflate", no_argument, NULL, O_INFLATE},
+        {"json", required_argument, NULL, O_JSON},
+        {"table", required_argument, NULL, O_TABLE},
+        {"quiet", no_argument, NULL, O_QUIET},
+        {NULL, 0, NULL, 0},
+    };
+    struct option longopts[64];
+    cli_merge_options(own, longopts, 64);
+    int c, rc = 0;
+    cs_error err;
+    cs_error_clear(&err);
+    optind = 1;
+    opterr = 0;
+    while (rc == 0 && (c = getopt_long(argc, argv, ":", longopts, NULL)) != -1) {
+        switch (c) {
+        case O_LINE:
+            so->line = cs_line_find(optarg);
+            if (!so->line) {
+                cli_errorf("--line '%s': unknown line; see 'collshift predict --help'", optarg);
+                rc = CLI_EXIT_USAGE;
+            }
+            break;
+        case O_THICK:
+            if (cs_quantity_parse(optarg, CS_DIM_LENGTH, NULL, &so->thickness_m, NULL, NULL, &err) != CS_OK ||
+                !(so->thickness_m > 0)) {
+                cli_errorf("--thickness '%s': %s", optarg, err.msg[0] ? err.msg : "must be positive");
+                rc = CLI_EXIT_USAGE;
+            }
+            break;
+        case O_ELEMENT:
+            if (!(cs_vapour_density(optarg, 400.0) > 0)) {
+                cli_errorf("--element '%s': expected Rb, Cs, K or Na", optarg);
+                rc = CLI_EXIT_USAGE;
+            }
+            so->p.element = optarg;
+            break;
+        case O_THREADS: {
+            char *end;
+            errno = 0;
+            long v = strtol(optarg, &end, 10);
+            if (end == optarg || *end || errno == ERANGE || v < 1 || v > 1024) {
+                cli_errorf("--threads '%s': expected a whole number from 1 to 1024", optarg);
+                rc = CLI_EXIT_USAGE;
+            }
+            so->p.threads = (int)v;
+            break;
+        }
+        case O_MODEL: so->p.model = optarg; break;
+        case O_BASELINE:
+            if (cs_baseline_parse(optarg, &so->p.baseline) != CS_OK) {
+                cli_errorf("--baseline '%s': expected none, const, linear, quad, cubic or exp", optarg);
+                rc = CLI_EXIT_USAGE;
+            }
+            break;
+        case O_REF:
+            if (cs_quantity_parse(optarg, CS_DIM_FREQUENCY, NULL, &so->p.ref_hz, NULL, NULL, &err) != CS_OK) {
+                cli_errorf("--ref '%s': %s", optarg, err.msg);
+                rc = CLI_EXIT_USAGE;
+            }
+            break;
+        case O_GATE:
+            if (strncmp(optarg, "early=", 6) == 0)
+                so->p.split.gate_early = optarg + 6;
+            else if (strncmp(optarg, "late=", 5) == 0)
+                so->p.split.gate_late = optarg + 5;
+            else {
+                cli_errorf("--gate '%s': expected early=SPEC or late=SPEC", optarg);
+                rc = CLI_EXIT_USAGE;
+            }
+            break;
+        case O_BURST_MODEL: so->p.split.burst_model = optarg; break;
+        case O_TAIL_MODEL: so->p.split.tail_model = optarg; break;
+        case O_ORIGIN: so->flags |= CS_SERIES_FIT_ORIGIN; break;
+        case O_INFLATE: so->flags |= CS_SERIES_FIT_INFLATE; break;
+        case O_JSON: so->json = optarg; break;
+        case O_TABLE: so->table = optarg; break;
+        case O_QUIET: so->quiet = 1; break;
+        case ':':
+            cli_errorf("series: option '%s' needs a value", argv[optind - 1]);
+            rc = CLI_EXIT_USAGE;
+            break;
+        case '?':
+            cli_errorf("series: unknown option '%s'; see 'collshift series --help'", argv[optind - 1]);
+            rc = CLI_EXIT_USAGE;
+            break;
+        default:
+            rc = cli_load_option(c, optarg, &so->p.load);
+            break;
+        }
+    }
+    if (rc)
+        return rc;
+    if (argc - optind != 1) {
+        cli_errorf("series: expected one manifest, got %d; see 'collshift series --help'", argc - optind);
+        return CLI_EXIT_USAGE;
+    }
+    so->manifest = argv[optind];
+    if (!so->p.element && so->line)
+        so->p.element = so->line->element;
+    return 0;
+}
+
+static void progress(size_t done, size_t total, void *ctx)
+{
+    (void)ctx;
+    fprintf(stderr, "\rseries: %zu/%zu entries", done, total);
+    if (done == total)
+        fputc('\n', stderr);
+    fflush(stderr);
+}
+
+int cmd_series(int argc, char **argv)
+{
+    series_opts so;
+    memset(&so, 0, sizeof so);
+    cs_series_params_default(&so.p);
+    so.thickness_m = NAN;
+    int rc = parse_args(argc, argv, &so);
+    if (rc)
+        return rc;
+    cs_error err;
+    cs_error_clear(&err);
+    cs_model *probe = cs_model_alloc(so.p.model, so.p.baseline, CS_MODEL_SUM, &err);
+    if (!probe) {
+        cli_errorf("--model '%s': %s", so.p.model, err.msg);
+        return CLI_EXIT_USAGE;
+    }
+    cs_model_free(probe);
+    cs_series *s = NULL;
+    if (cs_series_manifest_load(so.manifest, &s, &err) != CS_OK) {
+        cli_report(&err);
+        return CLI_EXIT_DATA;   /* a manifest that cannot be read or parsed is an input error */
+    }
+    if (isatty(STDERR_FILENO))
+        so.p.progress = progress;
+    if (so.p.threads > 1 && !cs_series_parallel_available())
+        cli_errorf("series: this build has no OpenMP; --threads %d runs one entry at a time", so.p.threads);
+    cs_error_clear(&err);
+    int run = cs_series_run(s, &so.p, &err);
+    if (run != CS_OK && run != CS_ENOCONV) {
+        cli_report(&err);
+        cs_series_free(s);
+        return run == CS_EINVAL ? CLI_EXIT_USAGE : CLI_EXIT_DATA;
+    }
+    for (size_t i = 0; i < s->n; i++)
+        if (s->e[i].status != CS_SERIES_OK)
+            cli_errorf("'%s': line %ld: %s: %s", s->manifest, s->e[i].line,
+                       cs_series_status_name(s->e[i].status), s->e[i].message);
+    rc = series_output(s, &so);
+    cs_series_free(s);
+    if (rc)
+        return rc;
+    return run == CS_OK ? CLI_EXIT_OK : CLI_EXIT_ANALYSIS;
+}

@@ -1,0 +1,386 @@
+/* `collshift series` output: summary, per-density table, regressions, theory, JSON and CSV. */
+#include "cli.h"
+#include "series_out.h"
+
+#include <collshift/report.h>
+
+#include <jansson.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+
+typedef struct sbuf {
+    char *s;
+    size_t n, cap;
+    int failed;
+} sbuf;
+
+#if defined(__GNUC__)
+__attribute__((format(printf, 2, 3)))
+#endif
+static void sb_printf(sbuf *b, const char *fmt, ...)
+{
+    if (b->failed)
+        return;
+    for (;;) {
+        va_list ap;
+        va_start(ap, fmt);
+        int k = vsnprintf(b->s ? b->s + b->n : NULL, b->s ? b->cap - b->n : 0, fmt, ap);
+        va_end(ap);
+        if (k < 0) {
+            b->failed = 1;
+            return;
+        }
+        if (b->s && b->n + (size_t)k < b->cap) {
+            b->n += (size_t)k;
+            return;
+        }
+        size_t nc = (b->cap ? 2 * b->cap : 4096) + (size_t)k;
+        char *ns = realloc(b->s, nc);
+        if (!ns) {
+            b->failed = 1;
+            return;
+        }
+        b->s = ns;
+        b->cap = nc;
+    }
+}
+
+static void sb_num(sbuf *b, double v)
+{
+    if (isfinite(v))
+        sb_printf(b, ",%.12g", v);
+    else
+        sb_printf(b, ",");
+}
+
+static json_t *jnum(double v)
+{
+    return isfinite(v) ? json_real(v) : json_null();
+}
+
+typedef struct order_item {
+    double d;
+    long line;
+    size_t i;
+} order_item;
+
+static int order_cmp(const void *a, const void *b)
+{
+    const order_item *x = a, *y = b;
+    int xn = !isfinite(x->d), yn = !isfinite(y->d);
+    if (xn != yn)
+        return xn - yn;
+    if (!xn && x->d != y->d)
+        return x->d < y->d ? -1 : 1;
+    return (x->line > y->line) - (x->line < y->line);
+}
+
+static json_t *line_json(const cs_series_line *l)
+{
+    if (!l->ok)
+        return json_null();
+    json_t *o = json_object();
+    json_object_set_new(o, "center_hz", jnum(l->center_hz));
+    json_object_set_new(o, "center_hz_err", jnum(l->center_hz_err));
+    json_object_set_new(o, "shift_hz", jnum(l->shift_hz));
+    json_object_set_new(o, "shift_hz_err", jnum(l->shift_hz_err));
+    json_object_set_new(o, "fwhm_hz", jnum(l->fwhm_hz));
+    json_object_set_new(o, "fwhm_hz_err", jnum(l->fwhm_hz_err));
+    json_object_set_new(o, "area", jnum(l->area));
+    json_object_set_new(o, "area_err", jnum(l->area_err));
+    return o;
+}
+
+static json_t *entry_json(const cs_series_entry *e)
+{
+    json_t *o = json_object();
+    json_object_set_new(o, "line", json_integer(e->line));
+    json_object_set_new(o, "file", json_string(e->file));
+    json_object_set_new(o, "status", json_string(cs_series_status_name(e->status)));
+    json_object_set_new(o, "message", json_string(e->message));
+    json_object_set_new(o, "kind", json_string(e->status == CS_SERIES_FAILED && e->kind == CS_KIND_AUTO
+                                                   ? "unknown" : cs_kind_name(e->kind)));
+    json_object_set_new(o, "shots", json_integer((json_int_t)e->nshots));
+    json_object_set_new(o, "density_cm3", jnum(e->density_used_m3 * 1e-6));
+    json_object_set_new(o, "density_source", json_string(cs_series_density_source_name(e->density_source)));
+    json_object_set_new(o, "temperature_k", jnum(e->temperature_K));
+    json_object_set_new(o, "thickness_m", jnum(e->thickness_m));
+    json_object_set_new(o, "reference_hz", jnum(e->ref_used_hz));
+    if (e->era >= 0)
+        json_object_set_new(o, "era", json_string(cs_split_era_name((cs_split_era)e->era)));
+    for (int k = 0; k < CS_SPLIT_NERA; k++)
+        json_object_set_new(o, cs_split_era_name((cs_split_era)k), line_json(&e->era_line[k]));
+    return o;
+}
+
+static json_t *regression_json(const cs_series_regression *r)
+{
+    json_t *o = json_object();
+    json_object_set_new(o, "era", json_string(cs_split_era_name(r->era)));
+    json_object_set_new(o, "quantity", json_string(cs_series_quantity_name(r->quantity)));
+    json_object_set_new(o, "y", json_string(r->quantity == CS_SERIES_Q_FWHM ? "fwhm_hz"
+                                            : r->relative ? "shift_hz" : "center_hz"));
+    json_object_set_new(o, "status", json_string(r->status == CS_OK ? "ok" : "too few points"));
+    json_object_set_new(o, "through_origin", json_boolean(r->fit.through_origin));
+    json_object_set_new(o, "slope_hz_cm3", jnum(r->fit.slope));
+    json_object_set_new(o, "slope_hz_cm3_err", jnum(r->fit.slope_err));
+    json_object_set_new(o, "intercept_hz", jnum(r->fit.intercept));
+    json_object_set_new(o, "intercept_hz_err", jnum(r->fit.intercept_err));
+    json_object_set_new(o, "chi2", jnum(r->fit.chi2));
+    json_object_set_new(o, "dof", json_integer((json_int_t)r->fit.dof));
+    json_object_set_new(o, "chi2_dof", jnum(r->fit.redchi2));
+    json_object_set_new(o, "n", json_integer((json_int_t)r->fit.n));
+    json_object_set_new(o, "errors_inflated", json_boolean(r->fit.inflated));
+    return o;
+}
+
+static json_t *theory_json(const cs_theory_estimates *est, const cs_series_compare *cmp, size_t ncmp)
+{
+    json_t *o = json_object();
+    json_t *jl = json_object();
+    json_object_set_new(jl, "name", json_string(est->line.name));
+    json_object_set_new(jl, "label", json_string(est->line.label));
+    json_object_set_new(jl, "source", json_string(est->line.source));
+    json_object_set_new(o, "line", jl);
+    json_object_set_new(o, "conventions", json_string(CS_THEORY_CONVENTIONS));
+    json_object_set_new(o, "thickness_m", jnum(est->in.thickness_m));
+    json_t *je = json_object();
+    static const cs_theory_quantity used[] = {CS_TH_LL_COEF, CS_TH_SLAB_COEF, CS_TH_SELF_COEF};
+    for (size_t i = 0; i < sizeof used / sizeof used[0]; i++) {
+        const cs_estimate *e = &est->e[used[i]];
+        json_t *x = json_object();
+        json_object_set_new(x, "label", json_string(e->label));
+        json_object_set_new(x, "value", jnum(e->value));
+        json_object_set_new(x, "unit", json_string(e->unit));
+        json_object_set_new(x, "status", json_string(cs_estimate_status_name(e->status)));
+        json_object_set_new(x, "formula", json_string(e->formula));
+        json_object_set_new(x, "source", json_string(e->source));
+        json_object_set_new(x, "note", json_string(e->note));
+        json_object_set_new(je, e->name, x);
+    }
+    json_object_set_new(o, "estimates", je);
+    json_t *jc = json_array();
+    for (size_t i = 0; i < ncmp; i++) {
+        json_t *x = json_object();
+        json_object_set_new(x, "era", json_string(cs_split_era_name(cmp[i].era)));
+        json_object_set_new(x, "quantity", json_string(cs_series_quantity_name(cmp[i].quantity)));
+        json_object_set_new(x, "estimate", json_string(cmp[i].name));
+        json_object_set_new(x, "theory_hz_cm3", jnum(cmp[i].theory_hz_cm3));
+        json_object_set_new(x, "slope_hz_cm3", jnum(cmp[i].measured_hz_cm3));
+        json_object_set_new(x, "slope_hz_cm3_err", jnum(cmp[i].measured_hz_cm3_err));
+        json_object_set_new(x, "ratio", jnum(cmp[i].ratio));
+        json_object_set_new(x, "nsigma", jnum(cmp[i].nsigma));
+        json_array_append_new(jc, x);
+    }
+    json_object_set_new(o, "comparisons", jc);
+    return o;
+}
+
+static void print_summary(const cs_series *s, const series_opts *so, const order_item *ord,
+                          const cs_series_regression *reg, const cs_theory_estimates *est,
+                          const cs_series_compare *cmp, size_t ncmp)
+{
+    size_t nok = 0, nfail = 0;
+    for (size_t i = 0; i < s->n; i++) {
+        nok += s->e[i].status == CS_SERIES_OK;
+        nfail += s->e[i].status == CS_SERIES_FAILED;
+    }
+    printf("%s: %zu entries: %zu ok, %zu partial, %zu failed (spectra: model %s; %d thread%s)\n",
+           s->manifest, s->n, nok, s->n - nok - nfail, nfail, so->p.model, so->p.threads,
+           so->p.threads == 1 ? "" : "s");
+    printf("\nPer density and era (shift = centre minus reference):\n");
+    printf("  %-18s %-5s %-24s %-24s %-24s %s\n", "density", "era", "centre", "shift", "FWHM", "file");
+    char b1[64], b2[64], b3[64], b4[64];
+    for (size_t j = 0; j < s->n; j++) {
+        const cs_series_entry *e = &s->e[ord[j].i];
+        cs_quantity_format(e->density_used_m3, CS_DIM_DENSITY, 4, b1, sizeof b1);
+        if (e->status == CS_SERIES_FAILED) {
+            printf("  %-18s %-5s %-74s %s  [failed, skipped]\n", isfinite(e->density_used_m3) ? b1 : "-",
+                   "-", "-", e->file);
+            continue;
+        }
+        for (int k = 0; k < CS_SPLIT_NERA; k++) {
+            const cs_series_line *l = &e->era_line[k];
+            if (!l->ok)
+                continue;
+            printf("  %-18s %-5s %-24s %-24s %-24s %s\n", b1, cs_split_era_name((cs_split_era)k),
+                   cs_format_value_err(l->center_hz, l->center_hz_err, CS_DIM_FREQUENCY, b2, sizeof b2),
+                   isfinite(l->shift_hz) ? cs_format_value_err(l->shift_hz, l->shift_hz_err, CS_DIM_FREQUENCY,
+                                                               b3, sizeof b3) : "-",
+                   cs_format_value_err(l->fwhm_hz, l->fwhm_hz_err, CS_DIM_FREQUENCY, b4, sizeof b4), e->file);
+        }
+    }
+    printf("\nRegressions against density (y = intercept + slope x density, density in cm^-3%s):\n",
+           (so->flags & CS_SERIES_FIT_ORIGIN) ? ", through the origin" : "");
+    for (size_t i = 0; i < CS_SPLIT_NERA * CS_SERIES_NQ; i++) {
+        const cs_series_regression *r = &reg[i];
+        const char *y = r->quantity == CS_SERIES_Q_FWHM ? "fwhm" : r->relative ? "shift" : "centre";
+        if (r->status != CS_OK) {
+            printf("  %-5s %-6s  too few points (%zu)\n", cs_split_era_name(r->era), y, r->fit.n);
+            continue;
+        }
+        printf("  %-5s %-6s  slope %s Hz cm^3, intercept %s, chi2/dof %.3g, n %zu%s\n",
+               cs_split_era_name(r->era), y,
+               cs_format_value_err(r->fit.slope, r->fit.slope_err, CS_DIM_DIMENSIONLESS, b1, sizeof b1),
+               cs_format_value_err(r->fit.intercept, r->fit.intercept_err, CS_DIM_FREQUENCY, b2, sizeof b2),
+               r->fit.redchi2, r->fit.n,
+               r->fit.inflated ? "  (errors inflated by sqrt(chi2/dof))" : "");
+    }
+    if (!est)
+        return;
+    printf("\nTheory: %s (%s); %s\n", est->line.label, est->line.source, CS_THEORY_CONVENTIONS);
+    for (size_t i = 0; i < ncmp; i++) {
+        const cs_estimate *e = &est->e[cmp[i].estimate];
+        printf("  %-5s %-6s vs %-30s %.4g Hz cm^3: ratio %.3g, (measured - theory)/error %+.2f  [%s]\n",
+               cs_split_era_name(cmp[i].era), cs_series_quantity_name(cmp[i].quantity), e->label,
+               cmp[i].theory_hz_cm3, cmp[i].ratio, cmp[i].nsigma, e->cite);
+    }
+    for (size_t q = CS_TH_LL_COEF; q <= CS_TH_SELF_COEF; q++)
+        if ((q == CS_TH_LL_COEF || q == CS_TH_SLAB_COEF || q == CS_TH_SELF_COEF) &&
+            est->e[q].status != CS_EST_OK)
+            printf("  %s: %s (%s)\n", est->e[q].label, cs_estimate_status_name(est->e[q].status), est->e[q].note);
+}
+
+static char *make_table(const cs_series *s, const order_item *ord)
+{
+    sbuf t = {0};
+    sb_printf(&t, "density_cm3,era,file,line,status,center_hz,center_hz_err,shift_hz,shift_hz_err,"
+                  "fwhm_hz,fwhm_hz_err,area,area_err\n");
+    for (size_t j = 0; j < s->n; j++) {
+        const cs_series_entry *e = &s->e[ord[j].i];
+        for (int k = 0; k < CS_SPLIT_NERA; k++) {
+            const cs_series_line *l = &e->era_line[k];
+            if (e->status != CS_SERIES_FAILED && !l->ok && e->era >= 0 && e->era != k)
+                continue;
+            if (isfinite(e->density_used_m3))
+                sb_printf(&t, "%.10g", e->density_used_m3 * 1e-6);
+            sb_printf(&t, ",%s,%s,%ld,%s", cs_split_era_name((cs_split_era)k), e->file, e->line,
+                      l->ok ? "ok" : e->status == CS_SERIES_FAILED ? "failed" : "not measured");
+            sb_num(&t, l->center_hz); sb_num(&t, l->center_hz_err);
+            sb_num(&t, l->shift_hz); sb_num(&t, l->shift_hz_err);
+            sb_num(&t, l->fwhm_hz); sb_num(&t, l->fwhm_hz_err);
+            sb_num(&t, l->area); sb_num(&t, l->area_err);
+            sb_printf(&t, "\n");
+        }
+    }
+    if (t.failed) {
+        free(t.s);
+        return NULL;
+    }
+    return t.s;
+}
+
+int series_output(const cs_series *s, const series_opts *so)
+{
+    int rc = 0;
+    order_item *ord = malloc((s->n ? s->n : 1) * sizeof *ord);
+    if (!ord) {
+        cli_errorf("series: out of memory");
+        return CLI_EXIT_DATA;
+    }
+    double dsum = 0, thick = so->thickness_m;
+    size_t nd = 0;
+    int thick_common = 1;
+    double thick_first = NAN;
+    for (size_t i = 0; i < s->n; i++) {
+        ord[i].d = s->e[i].density_used_m3;
+        ord[i].line = s->e[i].line;
+        ord[i].i = i;
+        if (isfinite(ord[i].d)) {
+            dsum += ord[i].d;
+            nd++;
+        }
+        double t = s->e[i].thickness_m;
+        if (i == 0)
+            thick_first = t;
+        else if (!(t == thick_first))
+            thick_common = 0;
+    }
+    qsort(ord, s->n, sizeof *ord, order_cmp);
+    if (!isfinite(thick) && thick_common && isfinite(thick_first))
+        thick = thick_first;
+
+    cs_series_regression reg[CS_SPLIT_NERA * CS_SERIES_NQ];
+    cs_series_regress(s, so->flags, reg);
+
+    cs_theory_estimates est;
+    cs_series_compare cmp[CS_SERIES_COMPARE_MAX];
+    size_t ncmp = 0;
+    int have_theory = 0;
+    if (so->line) {
+        cs_theory_inputs in;
+        cs_theory_inputs_init(&in);
+        if (nd)
+            in.density_m3 = dsum / (double)nd;
+        if (isfinite(thick))
+            in.thickness_m = thick;
+        cs_error err;
+        cs_error_clear(&err);
+        if (cs_theory_predict(so->line, &in, &est, &err) == CS_OK) {
+            have_theory = 1;
+            ncmp = cs_series_compare_theory(reg, &est, cmp);
+        } else {
+            cli_errorf("series: theory: %s", err.msg);
+        }
+    }
+    if (!so->quiet)
+        print_summary(s, so, ord, reg, have_theory ? &est : NULL, cmp, ncmp);
+
+    if (so->json) {
+        json_t *root = json_object();
+        json_object_set_new(root, "command", json_string("series"));
+        json_object_set_new(root, "manifest", json_string(s->manifest));
+        json_object_set_new(root, "conventions", json_string(CS_THEORY_CONVENTIONS));
+        json_object_set_new(root, "model", json_string(so->p.model));
+        json_object_set_new(root, "spectrum_eras", json_string("broadest component = burst, narrowest = tail"));
+        json_object_set_new(root, "threads", json_integer(so->p.threads));
+        json_t *je = json_array();
+        for (size_t i = 0; i < s->n; i++)
+            json_array_append_new(je, entry_json(&s->e[i]));
+        json_object_set_new(root, "entries", je);
+        json_t *jr = json_array();
+        int inflated = 0;
+        for (size_t i = 0; i < CS_SPLIT_NERA * CS_SERIES_NQ; i++) {
+            json_array_append_new(jr, regression_json(&reg[i]));
+            inflated |= reg[i].fit.inflated;
+        }
+        json_object_set_new(root, "regressions", jr);
+        json_object_set_new(root, "regression_note",
+                            json_string(inflated ? "errors multiplied by sqrt(chi2/dof) where chi2/dof > 1 (--inflate)"
+                                                 : "errors from the stated errors of the points"));
+        json_object_set_new(root, "theory", have_theory ? theory_json(&est, cmp, ncmp) : json_null());
+        char *text = json_dumps(root, JSON_INDENT(2) | JSON_REAL_PRECISION(17));
+        json_decref(root);
+        if (!text) {
+            cli_errorf("series: out of memory");
+            rc = CLI_EXIT_DATA;
+        } else {
+            size_t n = strlen(text);
+            char *t2 = realloc(text, n + 2);
+            if (t2) {
+                text = t2;
+                strcpy(text + n, "\n");
+            }
+            int w = cli_write_text(so->json, text);
+            if (w)
+                rc = w;
+            free(text);
+        }
+    }
+    if (so->table) {
+        char *t = make_table(s, ord);
+        if (!t) {
+            cli_errorf("series: out of memory");
+            rc = CLI_EXIT_DATA;
+        } else {
+            int w = cli_write_text(so->table, t);
+            if (w)
+                rc = w;
+            free(t);
+        }
+    }
+    free(ord);
+    return rc;
+}

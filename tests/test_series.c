@@ -1,0 +1,391 @@
+/* Tests of the series module: manifest parsing, straight-line fits, a synthetic campaign. */
+#include <check.h>
+#include <collshift/series.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "testutil.h"
+
+/* ---- straight lines ----------------------------------------------------------------------- */
+
+/* NIST StRD, linear regression dataset Norris (../shared/reference/nist-strd/Norris.dat,
+ * "Certified Regression Statistics" in the file's header): y = B0 + B1 x, 36 observations. */
+static const double norris_b0 = -0.262323073774029, norris_b0_sd = 0.232818234301152;
+static const double norris_b1 = 1.00211681802045, norris_b1_sd = 0.429796848199937e-03;
+static const double norris_resid_sd = 0.884796396144373;
+
+START_TEST(test_norris)
+{
+    const char *path = tu_reference_path("nist-strd/Norris.dat");
+    if (!path) {
+        fprintf(stderr, "test_norris: ../shared/reference absent, skipped\n");
+        return;
+    }
+    FILE *f = fopen(path, "r");
+    if (!f) {
+        fprintf(stderr, "test_norris: %s not readable, skipped\n", path);
+        return;
+    }
+    char line[256];
+    double x[64], y[64], one[64];
+    size_t n = 0;
+    for (int ln = 1; fgets(line, sizeof line, f); ln++) {
+        if (ln < 61 || n >= 64)
+            continue;
+        if (sscanf(line, "%lf %lf", &y[n], &x[n]) == 2) {
+            one[n] = 1.0;
+            n++;
+        }
+    }
+    fclose(f);
+    ck_assert_uint_eq(n, 36);
+    /* unweighted: errors from the residual scatter */
+    cs_series_linear r;
+    ck_assert_int_eq(cs_series_linfit(x, y, NULL, n, 0, &r, NULL), CS_OK);
+    ck_assert_msg(tu_close(r.intercept, norris_b0, 1e-9), "B0 %.15g", r.intercept);
+    ck_assert_msg(tu_close(r.slope, norris_b1, 1e-9), "B1 %.15g", r.slope);
+    ck_assert_msg(tu_close(r.intercept_err, norris_b0_sd, 1e-9), "sd B0 %.15g", r.intercept_err);
+    ck_assert_msg(tu_close(r.slope_err, norris_b1_sd, 1e-9), "sd B1 %.15g", r.slope_err);
+    ck_assert_msg(tu_close(sqrt(r.redchi2), norris_resid_sd, 1e-9), "resid sd %.15g", sqrt(r.redchi2));
+    ck_assert_uint_eq(r.dof, 34);
+    /* equal weights with sigma = the residual SD give the same numbers through gsl_fit_wlinear */
+    for (size_t i = 0; i < n; i++)
+        one[i] = norris_resid_sd;
+    ck_assert_int_eq(cs_series_linfit(x, y, one, n, 0, &r, NULL), CS_OK);
+    ck_assert(r.weighted && !r.inflated);
+    ck_assert_msg(tu_close(r.intercept, norris_b0, 1e-9), "B0 %.15g", r.intercept);
+    ck_assert_msg(tu_close(r.slope, norris_b1, 1e-9), "B1 %.15g", r.slope);
+    ck_assert_msg(tu_close(r.intercept_err, norris_b0_sd, 1e-9), "sd B0 %.15g", r.intercept_err);
+    ck_assert_msg(tu_close(r.slope_err, norris_b1_sd, 1e-9), "sd B1 %.15g", r.slope_err);
+    ck_assert_msg(tu_close(r.redchi2, 1.0, 1e-9), "chi2/dof %.15g", r.redchi2);
+}
+END_TEST
+
+/* Weighted straight line against the closed-form normal equations (e.g. P. R. Bevington,
+ * D. K. Robinson, "Data Reduction and Error Analysis", ch. 6): with S = sum w, Sx, Sy, Sxx, Sxy
+ * and D = S Sxx - Sx^2, b = (S Sxy - Sx Sy)/D, a = (Sxx Sy - Sx Sxy)/D, var b = S/D,
+ * var a = Sxx/D, cov(a, b) = -Sx/D; through the origin b = sum wxy / sum wx^2, var b = 1/sum wx^2. */
+START_TEST(test_weighted)
+{
+    const double x[] = {1.0, 2.0, 3.5, 4.0, 5.5, 7.0, 8.0, 9.5};
+    const double y[] = {2.9, 5.2, 7.9, 9.3, 11.9, 15.2, 16.8, 20.3};
+    const double s[] = {0.2, 0.3, 0.2, 0.5, 0.4, 0.3, 0.6, 0.4};
+    size_t n = sizeof x / sizeof x[0];
+    double S = 0, Sx = 0, Sy = 0, Sxx = 0, Sxy = 0;
+    for (size_t i = 0; i < n; i++) {
+        double w = 1 / (s[i] * s[i]);
+        S += w; Sx += w * x[i]; Sy += w * y[i]; Sxx += w * x[i] * x[i]; Sxy += w * x[i] * y[i];
+    }
+    double D = S * Sxx - Sx * Sx;
+    double b = (S * Sxy - Sx * Sy) / D, a = (Sxx * Sy - Sx * Sxy) / D;
+    double chi2 = 0;
+    for (size_t i = 0; i < n; i++)
+        chi2 += pow((y[i] - a - b * x[i]) / s[i], 2);
+    cs_series_linear r;
+    ck_assert_int_eq(cs_series_linfit(x, y, s, n, 0, &r, NULL), CS_OK);
+    ck_assert(tu_close(r.slope, b, 1e-12));
+    ck_assert(tu_close(r.intercept, a, 1e-12));
+    ck_assert(tu_close(r.slope_err, sqrt(S / D), 1e-12));
+    ck_assert(tu_close(r.intercept_err, sqrt(Sxx / D), 1e-12));
+    ck_assert(tu_close(r.cov, -Sx / D, 1e-12));
+    ck_assert(tu_close(r.chi2, chi2, 1e-10));
+    ck_assert(tu_close(r.redchi2, chi2 / 6, 1e-10));
+    /* inflation only when chi2/dof > 1, and then by sqrt(chi2/dof) */
+    cs_series_linear ri;
+    ck_assert_int_eq(cs_series_linfit(x, y, s, n, CS_SERIES_FIT_INFLATE, &ri, NULL), CS_OK);
+    double k = r.redchi2 > 1 ? sqrt(r.redchi2) : 1.0;
+    ck_assert_int_eq(ri.inflated, r.redchi2 > 1);
+    ck_assert(tu_close(ri.slope_err, r.slope_err * k, 1e-12));
+    double s_small[8];
+    for (size_t i = 0; i < n; i++)
+        s_small[i] = s[i] / 10;   /* chi2/dof x 100: surely > 1 */
+    ck_assert_int_eq(cs_series_linfit(x, y, s_small, n, CS_SERIES_FIT_INFLATE, &ri, NULL), CS_OK);
+    ck_assert(ri.inflated && ri.redchi2 > 1);
+    ck_assert(tu_close(ri.slope_err, sqrt(S / D) / 10 * sqrt(ri.redchi2), 1e-10));
+    /* through the origin */
+    double Swxy = 0, Swxx = 0;
+    for (size_t i = 0; i < n; i++) {
+        Swxy += x[i] * y[i] / (s[i] * s[i]);
+        Swxx += x[i] * x[i] / (s[i] * s[i]);
+    }
+    ck_assert_int_eq(cs_series_linfit(x, y, s, n, CS_SERIES_FIT_ORIGIN, &r, NULL), CS_OK);
+    ck_assert(r.through_origin && r.dof == n - 1 && r.intercept == 0);
+    ck_assert(tu_close(r.slope, Swxy / Swxx, 1e-12));
+    ck_assert(tu_close(r.slope_err, 1 / sqrt(Swxx), 1e-12));
+    /* too few points, no variation, bad sigma left out */
+    ck_assert_int_eq(cs_series_linfit(x, y, s, 1, 0, &r, NULL), CS_EDATA);
+    const double xc[] = {2, 2, 2};
+    ck_assert_int_eq(cs_series_linfit(xc, y, s, 3, 0, &r, NULL), CS_EDATA);
+    const double sb[] = {0.2, -1, NAN, 0.5, 0.4, 0.3, 0.6, 0.4};
+    ck_assert_int_eq(cs_series_linfit(x, y, sb, n, 0, &r, NULL), CS_OK);
+    ck_assert_uint_eq(r.n, n - 2);
+}
+END_TEST
+
+/* ---- manifest ----------------------------------------------------------------------------- */
+
+START_TEST(test_manifest_ok)
+{
+    const char *text =
+        "# campaign A\n"
+        "file, density_cm^-3, temperature, thickness_um, shot, era, reference, comment\n"
+        "a.csv, 3e13, 180 degC, 250, 2, burst, 9.1 GHz, first\n"
+        "\n"
+        "sub/b.csv, 4e13 cm^-3,,,,tail,,\n"
+        "/abs/c.csv, 5e19 m^-3\n";
+    cs_series *s = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_series_manifest_parse(text, "m.csv", "/data/run", &s, &err), CS_OK);
+    ck_assert_uint_eq(s->n, 3);
+    ck_assert_str_eq(s->e[0].path, "/data/run/a.csv");
+    ck_assert_str_eq(s->e[1].path, "/data/run/sub/b.csv");
+    ck_assert_str_eq(s->e[2].path, "/abs/c.csv");
+    ck_assert_int_eq(s->e[0].line, 3);
+    ck_assert_int_eq(s->e[1].line, 5);
+    ck_assert(tu_close(s->e[0].density_m3, 3e19, 1e-12));
+    ck_assert(tu_close(s->e[0].temperature_K, 453.15, 1e-12));
+    ck_assert(tu_close(s->e[0].thickness_m, 250e-6, 1e-12));
+    ck_assert(tu_close(s->e[0].ref_hz, 9.1e9, 1e-12));
+    ck_assert_int_eq(s->e[0].shot, 2);
+    ck_assert_int_eq(s->e[0].era, CS_SPLIT_BURST);
+    ck_assert(tu_close(s->e[1].density_m3, 4e19, 1e-12));
+    ck_assert(isnan(s->e[1].temperature_K) && isnan(s->e[1].ref_hz));
+    ck_assert_int_eq(s->e[1].shot, -1);
+    ck_assert_int_eq(s->e[1].era, CS_SPLIT_TAIL);
+    ck_assert(tu_close(s->e[2].density_m3, 5e19, 1e-12));
+    ck_assert_int_eq(s->e[2].era, -1);
+    cs_series_free(s);
+}
+END_TEST
+
+static const struct {
+    const char *text;
+    int code;
+    long line;
+    const char *words;
+} bad_manifests[] = {
+    {"file,density\na.csv,3e13\n", CS_EUNIT, 2, "no unit"},
+    {"file,density_cm^-3\na.csv,3e13\n# c\n\nb.csv,2e13\nc.csv,abc\n", CS_EINVAL, 6, "density"},
+    {"file,density_cm^-3,era\na.csv,3e13,burst\nb.csv,3e13,middle\n", CS_EINVAL, 3, "era 'middle'"},
+    {"path,density_cm^-3\na.csv,3e13\n", CS_EFORMAT, 1, "no 'file' column"},
+    {"file,density_cm^-3\na.csv,3e13,7\n", CS_EFORMAT, 2, "header has 2"},
+    {"file,density_cm^-3\na.csv,-3e13\n", CS_ERANGE, 2, "positive"},
+    {"file,density_GHz\na.csv,3\n", CS_EUNIT, 1, "density"},
+    {"file,density_cm^-3\n,3e13\n", CS_EFORMAT, 2, "file name is empty"},
+    {"file,density_cm^-3,shot\na.csv,3e13,x\n", CS_EINVAL, 2, "shot 'x'"},
+    {"file,density_cm^-3\n", CS_EFORMAT, -1, "lists no files"},
+    {"# only a comment\n", CS_EFORMAT, -1, "no header"},
+};
+
+START_TEST(test_manifest_errors)
+{
+    cs_series *s = (cs_series *)1;
+    cs_error err;
+    cs_error_clear(&err);
+    int rc = cs_series_manifest_parse(bad_manifests[_i].text, "m.csv", NULL, &s, &err);
+    ck_assert_msg(rc == bad_manifests[_i].code, "case %d: code %d, message '%s'", _i, rc, err.msg);
+    ck_assert_ptr_null(s);
+    ck_assert_int_eq(err.line, bad_manifests[_i].line);
+    ck_assert_str_eq(err.file, "m.csv");
+    ck_assert_msg(strstr(err.msg, bad_manifests[_i].words), "case %d: '%s'", _i, err.msg);
+}
+END_TEST
+
+START_TEST(test_manifest_load_missing)
+{
+    cs_series *s = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_series_manifest_load("/nonexistent/manifest.csv", &s, &err), CS_EIO);
+    ck_assert_ptr_null(s);
+}
+END_TEST
+
+/* ---- a synthetic campaign ----------------------------------------------------------------- */
+
+/* Truth: centres and FWHM linear in density N (cm^-3). */
+#define REF_HZ 1.0e9
+static const double slope_c[2] = {-3.0e-6, -1.0e-6};     /* burst (broad), tail (narrow); Hz cm^3 */
+static const double slope_w[2] = {2.0e-6, 0.5e-6};
+static const double w0[2] = {200e6, 20e6};
+static const double area[2] = {5e7, 1e7};
+#define NOISE 0.004
+#define NSPEC 6
+
+static double lorentz(double x, double c, double w, double a)
+{
+    double h = w / 2;
+    return a / 3.14159265358979323846 * h / ((x - c) * (x - c) + h * h);
+}
+
+/* Write NSPEC spectra and a manifest (plus extra rows); returns the manifest's path. */
+static const char *make_campaign(const char *tag, const char *extra_rows)
+{
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 12345);
+    static char mtext[4096];
+    size_t off = (size_t)snprintf(mtext, sizeof mtext, "file,density_cm^-3\n");
+    const char *dir = NULL;
+    for (int k = 0; k < NSPEC; k++) {
+        double N = 1e13 * (1 + k);
+        size_t n = 2001;
+        cs_spectrum *sp = cs_spectrum_alloc(n, 1);
+        ck_assert_ptr_nonnull(sp);
+        for (size_t i = 0; i < n; i++) {
+            double x = 0.5e9 + 0.5e6 * (double)i;
+            double v = 0.01;
+            for (int e = 0; e < 2; e++)
+                v += lorentz(x, REF_HZ + slope_c[e] * N, w0[e] + slope_w[e] * N, area[e]);
+            sp->freq_hz[i] = x;
+            sp->y[i] = v + gsl_ran_gaussian(rng, NOISE);
+            sp->sigma[i] = NOISE;
+        }
+        ck_assert_int_eq(cs_meta_set_si(&sp->meta, "reference", REF_HZ, CS_DIM_FREQUENCY), CS_OK);
+        char name[64];
+        snprintf(name, sizeof name, "%s_%d.csv", tag, k);
+        const char *path = tu_tmp_path(name);
+        cs_error err;
+        ck_assert_int_eq(cs_io_text_write_spectrum(path, sp, &err), CS_OK);
+        cs_spectrum_free(sp);
+        dir = path;
+        off += (size_t)snprintf(mtext + off, sizeof mtext - off, "%s,%g\n", name, N);
+    }
+    (void)dir;
+    if (extra_rows)
+        snprintf(mtext + off, sizeof mtext - off, "%s", extra_rows);
+    gsl_rng_free(rng);
+    char mname[64];
+    snprintf(mname, sizeof mname, "%s_manifest.csv", tag);
+    return tu_write_text(mname, mtext);
+}
+
+START_TEST(test_campaign)
+{
+    const char *mpath = make_campaign("camp", "missing.csv,7e13\n");
+    cs_series *s = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_series_manifest_load(mpath, &s, &err), CS_OK);
+    ck_assert_uint_eq(s->n, NSPEC + 1);
+    cs_series_params p;
+    cs_series_params_default(&p);
+    int rc = cs_series_run(s, &p, &err);
+    ck_assert_int_eq(rc, CS_ENOCONV);   /* the missing file */
+    for (int k = 0; k < NSPEC; k++)
+        ck_assert_msg(s->e[k].status == CS_SERIES_OK, "entry %d: %s", k, s->e[k].message);
+    ck_assert_int_eq(s->e[NSPEC].status, CS_SERIES_FAILED);
+    ck_assert_int_eq(s->e[NSPEC].error_code, CS_EIO);
+    ck_assert_ptr_nonnull(strstr(s->e[NSPEC].message, "missing.csv"));
+    ck_assert(!s->e[NSPEC].era_line[0].ok && !s->e[NSPEC].era_line[1].ok);
+    ck_assert_int_eq(s->e[0].density_source, CS_SERIES_DENSITY_MANIFEST);
+    ck_assert(tu_close(s->e[0].ref_used_hz, REF_HZ, 1e-12));
+
+    cs_series_regression reg[CS_SPLIT_NERA * CS_SERIES_NQ];
+    ck_assert_int_eq(cs_series_regress(s, 0, reg), CS_OK);
+    for (int e = 0; e < 2; e++) {
+        const cs_series_regression *rc_ = &reg[e * CS_SERIES_NQ + CS_SERIES_Q_CENTER];
+        const cs_series_regression *rw = &reg[e * CS_SERIES_NQ + CS_SERIES_Q_FWHM];
+        ck_assert_int_eq(rc_->status, CS_OK);
+        ck_assert(rc_->relative);
+        ck_assert_uint_eq(rc_->fit.n, NSPEC);
+        ck_assert_msg(fabs(rc_->fit.slope - slope_c[e]) < 3 * rc_->fit.slope_err,
+                      "era %d centre slope %g +- %g, truth %g", e, rc_->fit.slope, rc_->fit.slope_err, slope_c[e]);
+        ck_assert_msg(fabs(rc_->fit.intercept) < 3 * rc_->fit.intercept_err, "era %d intercept %g +- %g", e,
+                      rc_->fit.intercept, rc_->fit.intercept_err);
+        ck_assert_msg(fabs(rw->fit.slope - slope_w[e]) < 3 * rw->fit.slope_err,
+                      "era %d fwhm slope %g +- %g, truth %g", e, rw->fit.slope, rw->fit.slope_err, slope_w[e]);
+        ck_assert_msg(fabs(rw->fit.intercept - w0[e]) < 3 * rw->fit.intercept_err, "era %d fwhm intercept %g", e,
+                      rw->fit.intercept);
+        ck_assert(rc_->fit.slope_err > 0 && rc_->fit.slope_err < 0.1 * fabs(slope_c[e]));
+    }
+
+    /* theory comparison: rows for both eras, ratio and nsigma consistent */
+    cs_theory_estimates est;
+    cs_theory_inputs in;
+    cs_theory_inputs_init(&in);
+    in.density_m3 = 3e19;
+    in.thickness_m = 1e-6;
+    ck_assert_int_eq(cs_theory_predict(cs_line_find("rb87-d2"), &in, &est, NULL), CS_OK);
+    cs_series_compare cmp[CS_SERIES_COMPARE_MAX];
+    size_t nc = cs_series_compare_theory(reg, &est, cmp);
+    ck_assert_uint_eq(nc, 6);
+    for (size_t i = 0; i < nc; i++) {
+        ck_assert(tu_close(cmp[i].ratio * cmp[i].theory_hz_cm3, cmp[i].measured_hz_cm3, 1e-12));
+        ck_assert(tu_close(cmp[i].nsigma * cmp[i].measured_hz_cm3_err,
+                           cmp[i].measured_hz_cm3 - cmp[i].theory_hz_cm3, 1e-9));
+    }
+
+    /* two threads: identical numbers */
+    cs_series *s2 = NULL;
+    ck_assert_int_eq(cs_series_manifest_load(mpath, &s2, &err), CS_OK);
+    p.threads = 2;
+    ck_assert_int_eq(cs_series_run(s2, &p, &err), CS_ENOCONV);
+    for (size_t i = 0; i < s->n; i++) {
+        ck_assert_int_eq(s2->e[i].status, s->e[i].status);
+        ck_assert_int_eq(memcmp(s2->e[i].era_line, s->e[i].era_line, sizeof s->e[i].era_line), 0);
+    }
+    cs_series_free(s2);
+    cs_series_free(s);
+}
+END_TEST
+
+/* An 'era' column keeps one era; a one-component model gives the tail era. */
+START_TEST(test_campaign_era)
+{
+    const char *mpath = make_campaign("era", NULL);
+    cs_series *s = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_series_manifest_load(mpath, &s, &err), CS_OK);
+    s->e[0].era = CS_SPLIT_BURST;
+    cs_series_params p;
+    cs_series_params_default(&p);
+    ck_assert_int_eq(cs_series_run(s, &p, &err), CS_OK);
+    ck_assert(s->e[0].era_line[CS_SPLIT_BURST].ok && !s->e[0].era_line[CS_SPLIT_TAIL].ok);
+    ck_assert(s->e[1].era_line[CS_SPLIT_BURST].ok && s->e[1].era_line[CS_SPLIT_TAIL].ok);
+    ck_assert(s->e[1].era_line[CS_SPLIT_BURST].fwhm_hz > s->e[1].era_line[CS_SPLIT_TAIL].fwhm_hz);
+    /* density from the file's metadata is absent and there is no manifest density: failed */
+    s->e[2].density_m3 = NAN;
+    p.threads = 3;
+    ck_assert_int_eq(cs_series_run(s, &p, &err), CS_ENOCONV);
+    ck_assert_int_eq(s->e[2].status, CS_SERIES_FAILED);
+    ck_assert_ptr_nonnull(strstr(s->e[2].message, "no density"));
+    /* ... or from a temperature with the element */
+    s->e[2].temperature_K = 400;
+    p.element = "Rb";
+    ck_assert_int_eq(cs_series_run(s, &p, &err), CS_OK);
+    ck_assert_int_eq(s->e[2].density_source, CS_SERIES_DENSITY_TEMPERATURE);
+    ck_assert(tu_close(s->e[2].density_used_m3, cs_vapour_density("Rb", 400), 1e-12));
+    cs_series_free(s);
+}
+END_TEST
+
+static Suite *series_suite(void)
+{
+    Suite *s = suite_create("series");
+    TCase *t = tcase_create("linear");
+    tcase_add_test(t, test_norris);
+    tcase_add_test(t, test_weighted);
+    suite_add_tcase(s, t);
+    t = tcase_create("manifest");
+    tcase_add_test(t, test_manifest_ok);
+    tcase_add_loop_test(t, test_manifest_errors, 0, (int)(sizeof bad_manifests / sizeof bad_manifests[0]));
+    tcase_add_test(t, test_manifest_load_missing);
+    suite_add_tcase(s, t);
+    t = tcase_create("campaign");
+    tcase_set_timeout(t, 300);
+    tcase_add_test(t, test_campaign);
+    tcase_add_test(t, test_campaign_era);
+    suite_add_tcase(s, t);
+    return s;
+}
+
+int main(void)
+{
+    SRunner *r = srunner_create(series_suite());
+    srunner_run_all(r, CK_NORMAL);
+    int failed = srunner_ntests_failed(r);
+    srunner_free(r);
+    return failed ? 1 : 0;
+}
