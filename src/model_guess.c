@@ -41,15 +41,18 @@
  *    change keep their Gram entries. Cyclic coordinate descent, broadest component first,
  *    minimises the residual over each total FWHM (first a 24-point logarithmic grid from 2
  *    sample spacings to twice the span, later from half to twice the current value, then
- *    golden-section search in the best bracket), each centre (17 points within one FWHM, then
+ *    8 golden-section steps in the best bracket), each centre (17 points within one FWHM, then
  *    golden section) and an exponential baseline's rate; each sweep ends with a pattern move
  *    along its own displacement (Hooke and Jeeves), and at most 8 sweeps are made. Every step
  *    keeps the best value seen, so the residual never grows. When the lines are wide compared
- *    with the sampling this runs on every k-th point (at least 10 points per FWHM and 256
- *    points), followed by a short polish on all points. A Voigt is represented here by the
- *    pseudo-Voigt of the same Olivero-Longbothum width and the mixing of Thompson, Cox and
- *    Hastings (P. Thompson, D. E. Cox, J. B. Hastings, J. Appl. Cryst. 20, 79-83 (1987), eq. 4),
- *    within about 1 % of it.
+ *    with the sampling this runs on every k-th point (at least 4 points per FWHM and 256
+ *    points), followed by a short polish on all points (3-point grids, 4 golden steps, at most
+ *    two sweeps). A Voigt is represented here by the pseudo-Voigt of the same
+ *    Olivero-Longbothum width and the mixing of Thompson, Cox and Hastings (P. Thompson,
+ *    D. E. Cox, J. B. Hastings, J. Appl. Cryst. 20, 79-83 (1987), eq. 4), within about 1 % of
+ *    it; it and the Lorentzian are evaluated inline (the Gaussian part with a short exp
+ *    polynomial, and only within 3.7 FWHM), and the normal equations are updated in fused
+ *    passes, so one trial costs a few instructions per point.
  *
  * 5. Ranking kept. If a component ranked sharper ends up wider than one ranked broader (and both
  *    may move), they exchange centres and widths and a polish follows. When shoulders took part
@@ -60,7 +63,8 @@
  * shifted by fwhm/(2q) to put the maximum on the peak). A component that the sign constraint
  * switched off starts at 1 % of the largest amplitude. Mixed emission and absorption lines in
  * one spectrum are not separated. Values are finally moved inside their bounds. Multiple starts
- * are the fitter's job. Typical cost: a few ms for two lines on 2048 points.
+ * are the fitter's job. Typical cost: 2 to 3 ms (about 22 million instructions) for a Voigt, a
+ * Lorentzian and a linear baseline on 2048 points.
  *
  * Steps 6 and 7 take the amplitudes and baseline from the final linear solution (in transmission
  * T0 times exp(-offset - slope u), refitted by the model's baseline) and store the values.
@@ -78,20 +82,52 @@
 
 /* ---------------------------------------------------------------- small helpers */
 
-static int cmp_double(const void *a, const void *b)
+/* The k-th smallest of a[0..n) (k < n), partly reordering a (Hoare's selection). */
+static double select_kth(double *a, size_t n, size_t k)
 {
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
+    size_t lo = 0, hi = n - 1;
+    while (lo < hi) {
+        double piv = a[lo + (hi - lo) / 2];
+        size_t i = lo, j = hi;
+        while (i <= j) {
+            while (a[i] < piv)
+                i++;
+            while (piv < a[j])
+                j--;
+            if (i <= j) {
+                double t = a[i];
+                a[i] = a[j];
+                a[j] = t;
+                i++;
+                if (j == 0)
+                    break;
+                j--;
+            }
+        }
+        if (k <= j)
+            hi = j;
+        else if (k >= i)
+            lo = i;
+        else
+            break;
+    }
+    return a[k];
 }
 
-/* Median of v[0..n) using scratch (n doubles). */
+/* Median of v[0..n) using scratch (n doubles): the same value as sorting, in linear time. */
 double guess_median(const double *v, size_t n, double *scratch)
 {
     if (n == 0)
         return 0.0;
     memcpy(scratch, v, n * sizeof *v);
-    qsort(scratch, n, sizeof *scratch, cmp_double);
-    return n % 2 ? scratch[n / 2] : 0.5 * (scratch[n / 2 - 1] + scratch[n / 2]);
+    double hi = select_kth(scratch, n, n / 2);
+    if (n % 2)
+        return hi;
+    /* after the selection every element before n/2 is <= hi: the largest of them is the other */
+    double lo = scratch[0];
+    for (size_t i = 1; i < n / 2; i++)
+        lo = scratch[i] > lo ? scratch[i] : lo;
+    return 0.5 * (lo + hi);
 }
 
 /* Expected sharpness class: 1 for Lorentzian-like profiles, 0 for the others. */
@@ -370,7 +406,7 @@ static void step_assign(gctx *c, size_t ncd)
 }
 
 /* Step 4: set up the linear problem and refine (on every stride-th point when the lines are
- * much wider than the sampling, keeping at least 10 points per FWHM and 256 points, then a
+ * much wider than the sampling, keeping at least 4 points per FWHM and 256 points, then a
  * polish on all points). Returns the final residual sum of squares. */
 static double step_refine(gctx *c)
 {
@@ -419,7 +455,7 @@ static double step_refine(gctx *c)
         double w = guess_comp_width(m->comp[k].type, c->p + m->comp[k].first);
         wn = w < wn ? w : wn;
     }
-    size_t stride = isfinite(wn) ? (size_t)(wn / (10.0 * c->dx)) : 1;
+    size_t stride = isfinite(wn) ? (size_t)(wn / (4.0 * c->dx)) : 1;
     if (stride > n / 256)
         stride = n / 256;
     if (stride >= 2) {

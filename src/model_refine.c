@@ -12,12 +12,13 @@
 #include "model_guess_impl.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
 #define WIDTH_GRID 24
 #define CENTER_GRID 17
-#define GOLDEN_ITERS 12
+#define GOLDEN_ITERS 8
 #define MAX_SWEEPS 8
 #define RIDGE 1e-10
 #define OL_EQUAL 1.6376 /* Olivero-Longbothum FWHM / f at f_G = f_L = f: 0.5346 + sqrt(1.2166) */
@@ -72,6 +73,30 @@ static double dot(const double *a, const double *b, size_t n)
     for (; i < n; i++)
         s0 += a[i] * b[i];
     return (s0 + s1) + (s2 + s3);
+}
+
+/* dot(a, b) and dot(a, c) in one pass, each summed exactly as dot() sums it. */
+static void dot2(const double *a, const double *b, const double *c, size_t n, double *ab,
+                 double *ac)
+{
+    double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0, t0 = 0.0, t1 = 0.0, t2 = 0.0, t3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        s0 += a[i] * b[i];
+        s1 += a[i + 1] * b[i + 1];
+        s2 += a[i + 2] * b[i + 2];
+        s3 += a[i + 3] * b[i + 3];
+        t0 += a[i] * c[i];
+        t1 += a[i + 1] * c[i + 1];
+        t2 += a[i + 2] * c[i + 2];
+        t3 += a[i + 3] * c[i + 3];
+    }
+    for (; i < n; i++) {
+        s0 += a[i] * b[i];
+        t0 += a[i] * c[i];
+    }
+    *ab = (s0 + s1) + (s2 + s3);
+    *ac = (t0 + t1) + (t2 + t3);
 }
 
 /* Solve the normal equations of a least-squares problem t ~ sum_u c_u col_u from its raw
@@ -197,6 +222,33 @@ void guess_comp_set_width(const cs_profile_type *t, double *q, const unsigned ch
             q[j] = f;
 }
 
+/* exp(-t) for 0 <= t <= 700, to a few units in the last place: 2^-k times a degree-12 Taylor
+ * polynomial of exp(r), |r| <= ln(2)/2 (truncation 2e-16), without a library call. */
+static inline double exp_neg(double t)
+{
+    const double log2e = 1.44269504088896340736, ln2_hi = 6.93147180369123816490e-01,
+                 ln2_lo = 1.90821492927058770002e-10;
+    int k = (int)(t * log2e + 0.5);
+    double r = ((double)k * ln2_hi - t) + (double)k * ln2_lo;
+    double p = 1.0 / 479001600.0;
+    p = p * r + 1.0 / 39916800.0;
+    p = p * r + 1.0 / 3628800.0;
+    p = p * r + 1.0 / 362880.0;
+    p = p * r + 1.0 / 40320.0;
+    p = p * r + 1.0 / 5040.0;
+    p = p * r + 1.0 / 720.0;
+    p = p * r + 1.0 / 120.0;
+    p = p * r + 1.0 / 24.0;
+    p = p * r + 1.0 / 6.0;
+    p = p * r + 0.5;
+    p = p * r + 1.0;
+    p = p * r + 1.0;
+    uint64_t bits = (uint64_t)(1023 - k) << 52;
+    double scale;
+    memcpy(&scale, &bits, sizeof scale);
+    return p * scale;
+}
+
 /* Shape of a component with unit area (or unit peak when unit_peak) at the n points, into out.
  * A Voigt is replaced by the pseudo-Voigt of Thompson, Cox and Hastings. Returns CS_OK or the
  * profile's check code. */
@@ -220,6 +272,31 @@ static int comp_shape(const cs_profile_type *t, const double *q, const double *x
     int rc = cs_profile_check_params(use, r, NULL);
     if (rc != CS_OK)
         return rc;
+    if (use == &cs_profile_pvoigt || use == &cs_profile_lorentz) {
+        /* the two shapes the refinement evaluates most: inline, at unit area or unit peak, and
+         * the Gaussian part only where it exceeds about 1e-16 of its peak */
+        const double c0 = r[0], fw = r[1], eta = use == &cs_profile_lorentz ? 1.0 : r[2];
+        const double h = 0.5 * fw, ih = 1.0 / h;
+        const double kg = 4.0 * 0.69314718055994530942 / (fw * fw);
+        const double ul = 3.7 * fw; /* kg ul^2 = 38: exp(-38) = 3e-17 */
+        double al = 1.0 / (3.14159265358979323846 * h), ag = sqrt(kg / 3.14159265358979323846);
+        if (unit_peak) {
+            double hp = eta * al + (1.0 - eta) * ag;
+            if (!(hp > 0.0))
+                return CS_ERANGE;
+            al /= hp;
+            ag /= hp;
+        }
+        al *= eta;
+        ag *= 1.0 - eta;
+        for (size_t i = 0; i < n; i++) {
+            double u = x[i] - c0, e = u * ih, v = al / (1.0 + e * e);
+            if (ag != 0.0 && fabs(u) < ul)
+                v += ag * exp_neg(kg * u * u);
+            out[i] = v;
+        }
+        return CS_OK;
+    }
     double scale = 1.0;
     if (unit_peak) {
         double h;
@@ -296,9 +373,9 @@ double guess_objective(gw *g)
             tt_dirty = 1;
         }
     }
-    for (size_t u = 0; u < nlin; u++)
-        if (g->udirty[u])
-            memset(g->ucol + u * n, 0, n * sizeof *g->ucol);
+    unsigned char fresh[64]; /* dirty columns not yet written: the first source assigns */
+    for (size_t u = 0; u < nlin && u < 64; u++)
+        fresh[u] = g->udirty[u];
     if (tt_dirty)
         memcpy(g->tt, g->tgt, n * sizeof *g->tt);
     for (size_t s = 0; s < g->nsrc; s++) {
@@ -306,39 +383,65 @@ double guess_objective(gw *g)
         const double *v = g->src[s].col;
         const cs_param *pi = &m->par[i];
         double *dst = NULL, f = 0.0, fixed_part;
+        long ud = -1;
         if (g->uidx[i] >= 0) {
-            if (g->udirty[g->uidx[i]])
-                dst = g->ucol + (size_t)g->uidx[i] * n;
+            ud = g->uidx[i];
             f = 1.0;
             fixed_part = 0.0;
         } else if (pi->tie >= 0 && g->uidx[pi->tie] >= 0) {
-            if (g->udirty[g->uidx[pi->tie]])
-                dst = g->ucol + (size_t)g->uidx[pi->tie] * n;
+            ud = g->uidx[pi->tie];
             f = pi->tie_factor;
             fixed_part = pi->tie_offset;
         } else {
             fixed_part = g->p[i];
         }
+        if (ud >= 0 && g->udirty[ud])
+            dst = g->ucol + (size_t)ud * n;
         if (!tt_dirty)
             fixed_part = 0.0;
-        if (!dst && fixed_part == 0.0)
-            continue;
-        for (size_t j = 0; j < n; j++) {
-            if (dst)
+        if (dst && fresh[ud]) {
+            fresh[ud] = 0;
+            for (size_t j = 0; j < n; j++)
+                dst[j] = f * v[j];
+        } else if (dst) {
+            for (size_t j = 0; j < n; j++)
                 dst[j] += f * v[j];
-            g->tt[j] -= fixed_part * v[j];
         }
+        if (fixed_part != 0.0)
+            for (size_t j = 0; j < n; j++)
+                g->tt[j] -= fixed_part * v[j];
     }
+    for (size_t u = 0; u < nlin; u++)
+        if (fresh[u])
+            memset(g->ucol + u * n, 0, n * sizeof *g->ucol);
     if (tt_dirty)
         g->ttt = dot(g->tt, g->tt, n);
     for (size_t u = 0; u < nu; u++) {
-        const double *a = g->ucol + u * n;
+        /* the products this column needs, two per pass over the data */
+        const double *a = g->ucol + u * n, *b[65];
+        double *dst[65][2];
+        size_t nb = 0;
         if (g->udirty[u])
             for (size_t v = 0; v < nu; v++)
-                if (v == u || !g->udirty[v] || v > u)
-                    g->Gr[u * nu + v] = g->Gr[v * nu + u] = dot(a, g->ucol + v * n, n);
-        if (g->udirty[u] || tt_dirty)
-            g->rhs[u] = dot(a, g->tt, n);
+                if (v == u || !g->udirty[v] || v > u) {
+                    b[nb] = g->ucol + v * n;
+                    dst[nb][0] = &g->Gr[u * nu + v];
+                    dst[nb++][1] = &g->Gr[v * nu + u];
+                }
+        if (g->udirty[u] || tt_dirty) {
+            b[nb] = g->tt;
+            dst[nb][0] = dst[nb][1] = &g->rhs[u];
+            nb++;
+        }
+        size_t j = 0;
+        for (; j + 2 <= nb; j += 2) {
+            double p0, p1;
+            dot2(a, b[j], b[j + 1], n, &p0, &p1);
+            *dst[j][0] = *dst[j][1] = p0;
+            *dst[j + 1][0] = *dst[j + 1][1] = p1;
+        }
+        if (j < nb)
+            *dst[j][0] = *dst[j][1] = dot(a, b[j], n);
     }
     g->cache_ok = 1;
     return lsq_solve(g->Gr, g->rhs, g->ttt, nu, g->coef, g->G, g->sgn);
@@ -462,8 +565,10 @@ void guess_gw_bind(gw *g, const double *x, const double *tgt, const double *wt, 
     if (!g->trans && nb > 0) {
         for (size_t j = 0; j < (m->baseline == CS_BASELINE_EXP ? 1 : nb); j++) {
             if (m->baseline != CS_BASELINE_EXP)
-                for (size_t i = 0; i < n; i++)
-                    g->bcol[j * n + i] = pow(x[i] - g->xr, (double)j);
+                for (size_t i = 0; i < n; i++) /* u^0 and u^1 exactly, without pow */
+                    g->bcol[j * n + i] = j == 0   ? 1.0
+                                         : j == 1 ? x[i] - g->xr
+                                                  : pow(x[i] - g->xr, (double)j);
             g->src[g->nsrc].param = bf + j;
             g->src[g->nsrc].comp = -1;
             g->src[g->nsrc++].col = g->bcol + j * n;
@@ -478,14 +583,14 @@ void guess_gw_bind(gw *g, const double *x, const double *tgt, const double *wt, 
 /* Cyclic coordinate descent over the components' widths and centres (broadest first) and an
  * exponential baseline's rate; the first sweep scans widths over the whole range, later ones
  * from half to twice the current width. A polish makes at most two sweeps of small steps
- * (widths within 25 %, centres within a quarter width). */
+ * (3-point grids: widths within 25 %, centres within a quarter width). */
 void guess_refine(gw *g, const size_t *order, double wmin, int polish)
 {
     const cs_model *m = g->m;
     const size_t bf = m->base_first;
     const double *x = g->x;
     const size_t np = m->nparams;
-    const int iters = polish ? 6 : GOLDEN_ITERS;
+    const int iters = polish ? 4 : GOLDEN_ITERS;
     double ssr = guess_objective(g);
     for (int sweep = 0; sweep < (polish ? 2 : MAX_SWEEPS); sweep++) {
         double prev = ssr;
@@ -503,7 +608,7 @@ void guess_refine(gw *g, const size_t *order, double wmin, int polish)
                     double f = polish ? 1.25 : 2.0;
                     a = w / f > wmin ? w / f : wmin;
                     b = f * w < g->wmax ? f * w : g->wmax;
-                    ng = polish ? 5 : 9;
+                    ng = polish ? 3 : 9;
                 }
                 coord_min(g, CO_WIDTH, k, a, b, ng, 1, iters, &ssr);
             }
@@ -515,7 +620,7 @@ void guess_refine(gw *g, const size_t *order, double wmin, int polish)
                     w *= 0.25;
                 double lo = c - w > x[0] ? c - w : x[0];
                 double hi = c + w < x[g->n - 1] ? c + w : x[g->n - 1];
-                coord_min(g, CO_CENTER, k, lo, hi, polish ? 5 : CENTER_GRID, 0, iters, &ssr);
+                coord_min(g, CO_CENTER, k, lo, hi, polish ? 3 : CENTER_GRID, 0, iters, &ssr);
             }
         }
         if (!g->trans && m->baseline == CS_BASELINE_EXP && g->guess[bf + 1]) {
