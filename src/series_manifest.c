@@ -253,12 +253,14 @@ int cs_series_manifest_parse(const char *text, const char *name, const char *dir
         }
         cs_series_entry *e = &s->e[s->n++];
         memset(e, 0, sizeof *e);
+        e->index = s->n - 1;
         rc = parse_row(mname, ln, f, nf, colmap, units, s->dir, e, err);
     }
     if (rc == CS_OK && !have_header)
         rc = cs_error_set(err, CS_EFORMAT, mname, -1, -1, "empty manifest: no header row");
     else if (rc == CS_OK && s->n == 0)
         rc = cs_error_set(err, CS_EFORMAT, mname, -1, -1, "the manifest lists no files");
+    s->total = s->n;
     free(buf);
     if (rc != CS_OK) {
         cs_series_free(s);

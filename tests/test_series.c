@@ -361,6 +361,51 @@ START_TEST(test_campaign_era)
 }
 END_TEST
 
+/* Shards: K/N syntax, every N-th entry from the K-th, and merging back into manifest order. */
+START_TEST(test_shard_merge)
+{
+    size_t k = 0, n = 0;
+    cs_error err;
+    ck_assert_int_eq(cs_series_shard_parse("2/3", &k, &n, &err), CS_OK);
+    ck_assert_uint_eq(k, 2);
+    ck_assert_uint_eq(n, 3);
+    static const char *const bad[] = {"0/3", "4/3", "3", "x/3", "1/0", "1/", "/2", "-1/3", "1/3 ", ""};
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++)
+        ck_assert_int_eq(cs_series_shard_parse(bad[i], &k, &n, NULL), CS_EINVAL);
+    const char *text = "file,density_cm^-3\na,1e13\nb,2e13\nc,3e13\nd,4e13\ne,5e13\n";
+    cs_series *part[3];
+    for (size_t i = 0; i < 3; i++) {
+        ck_assert_int_eq(cs_series_manifest_parse(text, "m.csv", NULL, &part[i], &err), CS_OK);
+        ck_assert_int_eq(cs_series_shard(part[i], i + 1, 3, &err), CS_OK);
+        ck_assert_uint_eq(part[i]->total, 5);
+    }
+    ck_assert_uint_eq(part[0]->n, 2);
+    ck_assert_str_eq(part[0]->e[1].file, "d");
+    ck_assert_uint_eq(part[2]->n, 1);
+    ck_assert_str_eq(part[2]->e[0].file, "c");
+    const cs_series *order[3] = {part[2], part[0], part[1]};
+    cs_series *m = NULL;
+    ck_assert_int_eq(cs_series_merge(order, 3, &m, &err), CS_OK);
+    ck_assert_uint_eq(m->n, 5);
+    for (size_t i = 0; i < 5; i++) {
+        ck_assert_uint_eq(m->e[i].index, i);
+        ck_assert_int_eq(m->e[i].file[0], (int)('a' + i));
+    }
+    cs_series_free(m);
+    const cs_series *two[2] = {part[0], part[2]};
+    ck_assert_int_eq(cs_series_merge(two, 2, &m, &err), CS_EDATA);
+    ck_assert_ptr_null(m);
+    ck_assert_ptr_nonnull(strstr(err.msg, "entries 2, 5"));
+    const cs_series *dup[4] = {part[0], part[1], part[2], part[1]};
+    ck_assert_int_eq(cs_series_merge(dup, 4, &m, &err), CS_EDATA);
+    ck_assert_ptr_nonnull(strstr(err.msg, "two shards"));
+    part[1]->total = 6;
+    ck_assert_int_eq(cs_series_merge(order, 3, &m, &err), CS_EDATA);
+    for (size_t i = 0; i < 3; i++)
+        cs_series_free(part[i]);
+}
+END_TEST
+
 static Suite *series_suite(void)
 {
     Suite *s = suite_create("series");
@@ -372,6 +417,7 @@ static Suite *series_suite(void)
     tcase_add_test(t, test_manifest_ok);
     tcase_add_loop_test(t, test_manifest_errors, 0, (int)(sizeof bad_manifests / sizeof bad_manifests[0]));
     tcase_add_test(t, test_manifest_load_missing);
+    tcase_add_test(t, test_shard_merge);
     suite_add_tcase(s, t);
     t = tcase_create("campaign");
     tcase_set_timeout(t, 300);

@@ -108,6 +108,7 @@ typedef struct cs_series_entry {
     cs_series_density_source density_source;
     double ref_used_hz;               /* NaN without a reference */
     cs_series_line era_line[CS_SPLIT_NERA];
+    size_t index;                     /* 0-based position among the manifest's entries */
 } cs_series_entry;
 
 /* A manifest and its entries. */
@@ -116,6 +117,7 @@ typedef struct cs_series {
     char *dir;                        /* folder the file names are relative to */
     size_t n;
     cs_series_entry *e;
+    size_t total;                     /* entries the manifest lists (n is less after cs_series_shard) */
 } cs_series;
 
 /* Parse manifest text. name: used in messages (may be NULL); dir: folder the file names are
@@ -158,6 +160,24 @@ int cs_series_parallel_available(void);
  * message say why; the others hold their results); CS_EINVAL (NULL s or p, threads < 1, a model
  * that cannot be built); CS_ENOMEM. */
 int cs_series_run(cs_series *s, const cs_series_params *p, cs_error *err);
+
+/* ---- shards: one campaign over several machines ------------------------------------------ */
+
+/* Parse "K/N" (whole numbers, 1 <= K <= N <= 1000000) into *k and *n. Returns CS_OK or CS_EINVAL
+ * (with a message saying what is wrong). */
+int cs_series_shard_parse(const char *text, size_t *k, size_t *n, cs_error *err);
+/* Keep shard K of N: the entries whose 0-based manifest position i has i % N == K - 1 (every N-th
+ * entry starting at the K-th), in manifest order; the others are released. s->total is kept. A
+ * shard may be empty (K > s->total). Returns CS_OK or CS_EINVAL (NULL s, K < 1, K > N). */
+int cs_series_shard(cs_series *s, size_t k, size_t n, cs_error *err);
+/* Combine shards (each a cs_series whose entries carry their manifest position 'index' and whose
+ * 'total' is the manifest's number of entries) into one series with every entry, in manifest
+ * order, as an unsharded run holds them (entries are deep-copied; manifest and dir from parts[0]).
+ * Returns CS_OK and *out (caller frees); CS_EDATA when the parts disagree on total, an entry is in
+ * two parts, an index is out of range, or some entry is in no part (the message names the first
+ * few missing entries and their manifest lines when known); CS_EINVAL (NULL arguments, no
+ * parts); CS_ENOMEM. */
+int cs_series_merge(const cs_series *const *parts, size_t nparts, cs_series **out, cs_error *err);
 
 /* ---- straight lines ----------------------------------------------------------------------- */
 

@@ -39,6 +39,10 @@ int cmd_predict(int, char **);
 extern const char *const cmd_predict_usage[];
 int cmd_series(int, char **);
 extern const char *const cmd_series_usage[];
+int cmd_simulate(int, char **);
+extern const char *const cmd_simulate_usage[];
+int cmd_merge(int, char **);
+extern const char *const cmd_merge_usage[];
 
 /* Print a command's usage chunks to f. */
 void cli_print_usage(const cli_command *c, FILE *f);

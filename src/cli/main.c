@@ -17,6 +17,8 @@ static const cli_command commands[] = {
     {"split", cmd_split, "fit the burst-era and tail-era lines of time records and their collective shift", cmd_split_usage},
     {"predict", cmd_predict, "estimate Lorentz-Lorenz and cooperative Lamb shifts, self-broadening, superradiance, trapping", cmd_predict_usage},
     {"series", cmd_series, "analyse a campaign of files at known densities: slopes of shift and width, theory", cmd_series_usage},
+    {"simulate", cmd_simulate, "write synthetic records or spectra of an invented density series, with the true values", cmd_simulate_usage},
+    {"merge", cmd_merge, "combine the JSON of sharded series runs (--shard K/N) into the campaign of one run", cmd_merge_usage},
 };
 static const size_t ncommands = sizeof commands / sizeof commands[0];
 

@@ -13,7 +13,8 @@
 #include <unistd.h>
 
 const char *const cmd_series_usage[] = {
-    "usage: collshift series MANIFEST [--line NAME] [--threads N] [--json FILE] [--table FILE] [options]\n"
+    "usage: collshift series MANIFEST [--line NAME] [--threads N] [--json FILE] [--table FILE]\n"
+    "                        [--theory-table FILE] [--shard K/N] [options]\n"
     "\n"
     "Analyses every file of a measurement campaign and fits straight lines against density: the\n"
     "centre (the shift, when every file has a reference frequency) and the FWHM of each era, by\n"
@@ -55,8 +56,24 @@ const char *const cmd_series_usage[] = {
     "  --json FILE           entries, regressions and theory as JSON ('-' for standard output)\n"
     "  --table FILE          CSV, one row per entry and era sorted by density: density_cm3, era,\n"
     "                        file, status, center_hz, shift_hz, fwhm_hz, area and their errors\n"
+    "  --theory-table FILE   CSV (needs --line), one row per measured slope and estimate: era,\n"
+    "                        quantity, y, estimate, label, theory_hz_cm3, slope_hz_cm3,\n"
+    "                        slope_hz_cm3_err, ratio (measured/theory), nsigma ((measured -\n"
+    "                        theory)/error), source\n"
     "  --quiet               no summary on standard output\n"
     "A progress line is shown on standard error when it is a terminal.\n"
+    "\n"
+    "More than one machine:\n"
+    "  --shard K/N           analyse only every N-th manifest entry starting at the K-th (K from 1\n"
+    "                        to N; entries counted from 1 in manifest order), e.g. in a Slurm job\n"
+    "                        array: --shard $SLURM_ARRAY_TASK_ID/N with --array=1-N. Write each\n"
+    "                        shard with --json and combine them with 'collshift merge': the\n"
+    "                        merged table, regressions and theory equal those of one run over the\n"
+    "                        whole manifest. The JSON's 'run' object holds a fingerprint of the\n"
+    "                        manifest's bytes and of the options that change results (all but\n"
+    "                        --threads, --shard and the outputs); merge refuses shards whose\n"
+    "                        fingerprints differ. A shard's own summary and regressions cover\n"
+    "                        its entries only.\n"
     "\n",
     CLI_LOAD_OPTIONS_HELP,
     "\n"
@@ -68,10 +85,22 @@ const char *const cmd_series_usage[] = {
 
 enum {
     O_LINE = 1, O_THICK, O_ELEMENT, O_THREADS, O_MODEL, O_BASELINE, O_REF, O_GATE, O_BURST_MODEL,
-    O_TAIL_MODEL, O_ORIGIN, O_INFLATE, O_JSON, O_TABLE, O_QUIET
+    O_TAIL_MODEL, O_ORIGIN, O_INFLATE, O_JSON, O_TABLE, O_QUIET, O_SHARD, O_THEORY_TABLE
 };
 
-static int parse_args(int argc, char **argv, series_opts *so)
+/* Append "--name[=value]\n" to the options text (the fingerprint's input). */
+static int add_option_text(char **text, size_t *len, const char *name, const char *value)
+{
+    size_t need = strlen(name) + (value ? strlen(value) + 1 : 0) + 4;
+    char *t = realloc(*text, *len + need);
+    if (!t)
+        return -1;
+    *text = t;
+    *len += (size_t)snprintf(t + *len, need, "--%s%s%s\n", name, value ? "=" : "", value ? value : "");
+    return 0;
+}
+
+static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
 {
     static const struct option own[] = {
         {"line", required_argument, NULL, O_LINE},
@@ -89,16 +118,28 @@ static int parse_args(int argc, char **argv, series_opts *so)
         {"json", required_argument, NULL, O_JSON},
         {"table", required_argument, NULL, O_TABLE},
         {"quiet", no_argument, NULL, O_QUIET},
+        {"shard", required_argument, NULL, O_SHARD},
+        {"theory-table", required_argument, NULL, O_THEORY_TABLE},
         {NULL, 0, NULL, 0},
     };
     struct option longopts[64];
     cli_merge_options(own, longopts, 64);
-    int c, rc = 0;
+    int c, rc = 0, li = -1;
+    size_t tlen = 0;
     cs_error err;
     cs_error_clear(&err);
     optind = 1;
     opterr = 0;
-    while (rc == 0 && (c = getopt_long(argc, argv, ":", longopts, NULL)) != -1) {
+    *opt_text = calloc(1, 1);
+    if (!*opt_text)
+        return CLI_EXIT_DATA;
+    while (rc == 0 && (li = -1, c = getopt_long(argc, argv, ":", longopts, &li)) != -1) {
+        if (li >= 0 && c != O_THREADS && c != O_JSON && c != O_TABLE && c != O_QUIET && c != O_SHARD &&
+            c != O_THEORY_TABLE && add_option_text(opt_text, &tlen, longopts[li].name,
+                                                   longopts[li].has_arg ? optarg : NULL)) {
+            cli_errorf("series: out of memory");
+            return CLI_EXIT_DATA;
+        }
         switch (c) {
         case O_LINE:
             so->line = cs_line_find(optarg);
@@ -162,6 +203,13 @@ static int parse_args(int argc, char **argv, series_opts *so)
         case O_JSON: so->json = optarg; break;
         case O_TABLE: so->table = optarg; break;
         case O_QUIET: so->quiet = 1; break;
+        case O_THEORY_TABLE: so->theory_table = optarg; break;
+        case O_SHARD:
+            if (cs_series_shard_parse(optarg, &so->shard_k, &so->shard_n, &err) != CS_OK) {
+                cli_errorf("--shard '%s': %s", optarg, err.msg);
+                rc = CLI_EXIT_USAGE;
+            }
+            break;
         case ':':
             cli_errorf("series: option '%s' needs a value", argv[optind - 1]);
             rc = CLI_EXIT_USAGE;
@@ -182,6 +230,10 @@ static int parse_args(int argc, char **argv, series_opts *so)
         return CLI_EXIT_USAGE;
     }
     so->manifest = argv[optind];
+    if (so->theory_table && !so->line) {
+        cli_errorf("series: --theory-table needs --line (the line whose estimates are compared)");
+        return CLI_EXIT_USAGE;
+    }
     if (!so->p.element && so->line)
         so->p.element = so->line->element;
     return 0;
@@ -196,15 +248,54 @@ static void progress(size_t done, size_t total, void *ctx)
     fflush(stderr);
 }
 
+/* Fingerprint of the manifest's bytes and the options text into so->fingerprint. Returns 0, or
+ * prints a message and returns CLI_EXIT_DATA when the manifest cannot be read. */
+static int fingerprint(series_opts *so)
+{
+    FILE *fp = fopen(so->manifest, "rb");
+    if (!fp) {
+        cli_errorf("'%s': %s", so->manifest, strerror(errno));
+        return CLI_EXIT_DATA;
+    }
+    unsigned long long h = SERIES_FNV_SEED;
+    char buf[8192];
+    size_t k;
+    while ((k = fread(buf, 1, sizeof buf, fp)) > 0)
+        h = series_fnv1a(h, buf, k);
+    int bad = ferror(fp);
+    fclose(fp);
+    if (bad) {
+        cli_errorf("'%s': read error", so->manifest);
+        return CLI_EXIT_DATA;
+    }
+    h = series_fnv1a(h, "", 1);
+    h = series_fnv1a(h, so->options, strlen(so->options));
+    snprintf(so->fingerprint, sizeof so->fingerprint, "fnv1a64:%016llx", h);
+    return 0;
+}
+
+static int run_series(series_opts *so);
+
 int cmd_series(int argc, char **argv)
 {
     series_opts so;
     memset(&so, 0, sizeof so);
     cs_series_params_default(&so.p);
     so.thickness_m = NAN;
-    int rc = parse_args(argc, argv, &so);
-    if (rc)
-        return rc;
+    so.command = "series";
+    char *opt_text = NULL;
+    int rc = parse_args(argc, argv, &so, &opt_text);
+    so.options = opt_text;
+    if (!rc)
+        rc = run_series(&so);
+    free(opt_text);
+    return rc;
+}
+
+static int run_series(series_opts *so_)
+{
+    series_opts so = *so_;
+    int rc;
     cs_error err;
     cs_error_clear(&err);
     cs_model *probe = cs_model_alloc(so.p.model, so.p.baseline, CS_MODEL_SUM, &err);
@@ -217,6 +308,15 @@ int cmd_series(int argc, char **argv)
     if (cs_series_manifest_load(so.manifest, &s, &err) != CS_OK) {
         cli_report(&err);
         return CLI_EXIT_DATA;   /* a manifest that cannot be read or parsed is an input error */
+    }
+    if ((rc = fingerprint(&so)) != 0) {
+        cs_series_free(s);
+        return rc;
+    }
+    if (so.shard_n && cs_series_shard(s, so.shard_k, so.shard_n, &err) != CS_OK) {
+        cli_report(&err);
+        cs_series_free(s);
+        return CLI_EXIT_USAGE;
     }
     if (isatty(STDERR_FILENO))
         so.p.progress = progress;

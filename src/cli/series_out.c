@@ -55,6 +55,31 @@ static void sb_num(sbuf *b, double v)
         sb_printf(b, ",");
 }
 
+unsigned long long series_fnv1a(unsigned long long h, const void *data, size_t n)
+{
+    const unsigned char *p = data;
+    for (size_t i = 0; i < n; i++) {
+        h ^= p[i];
+        h *= 0x100000001b3ull;
+    }
+    return h;
+}
+
+/* A CSV text field, quoted when it holds a comma, a quote or a line break. */
+static void sb_text(sbuf *b, const char *t)
+{
+    if (!t)
+        t = "";
+    if (!strpbrk(t, ",\"\r\n")) {
+        sb_printf(b, ",%s", t);
+        return;
+    }
+    sb_printf(b, ",\"");
+    for (const char *p = t; *p; p++)
+        sb_printf(b, *p == '"' ? "\"\"" : "%c", *p);
+    sb_printf(b, "\"");
+}
+
 static json_t *jnum(double v)
 {
     return isfinite(v) ? json_real(v) : json_null();
@@ -96,6 +121,7 @@ static json_t *line_json(const cs_series_line *l)
 static json_t *entry_json(const cs_series_entry *e)
 {
     json_t *o = json_object();
+    json_object_set_new(o, "index", json_integer((json_int_t)e->index));
     json_object_set_new(o, "line", json_integer(e->line));
     json_object_set_new(o, "file", json_string(e->file));
     json_object_set_new(o, "status", json_string(cs_series_status_name(e->status)));
@@ -104,6 +130,7 @@ static json_t *entry_json(const cs_series_entry *e)
                                                    ? "unknown" : cs_kind_name(e->kind)));
     json_object_set_new(o, "shots", json_integer((json_int_t)e->nshots));
     json_object_set_new(o, "density_cm3", jnum(e->density_used_m3 * 1e-6));
+    json_object_set_new(o, "density_m3", jnum(e->density_used_m3));   /* exact, for merge */
     json_object_set_new(o, "density_source", json_string(cs_series_density_source_name(e->density_source)));
     json_object_set_new(o, "temperature_k", jnum(e->temperature_K));
     json_object_set_new(o, "thickness_m", jnum(e->thickness_m));
@@ -272,6 +299,55 @@ static char *make_table(const cs_series *s, const order_item *ord)
     return t.s;
 }
 
+static char *make_theory_table(const cs_series_regression *reg, const cs_theory_estimates *est,
+                               const cs_series_compare *cmp, size_t ncmp)
+{
+    sbuf t = {0};
+    sb_printf(&t, "era,quantity,y,estimate,label,theory_hz_cm3,slope_hz_cm3,slope_hz_cm3_err,ratio,nsigma,"
+                  "source\n");
+    for (size_t i = 0; est && i < ncmp; i++) {
+        const cs_estimate *e = &est->e[cmp[i].estimate];
+        sb_printf(&t, "%s,%s", cs_split_era_name(cmp[i].era), cs_series_quantity_name(cmp[i].quantity));
+        sb_text(&t, cmp[i].quantity == CS_SERIES_Q_FWHM ? "fwhm_hz"
+                    : reg[cmp[i].era * CS_SERIES_NQ + cmp[i].quantity].relative ? "shift_hz" : "center_hz");
+        sb_text(&t, cmp[i].name);
+        sb_text(&t, e->label);
+        sb_printf(&t, ",%.17g", cmp[i].theory_hz_cm3);
+        sb_printf(&t, ",%.17g,%.17g", cmp[i].measured_hz_cm3, cmp[i].measured_hz_cm3_err);
+        sb_num(&t, cmp[i].ratio);
+        sb_num(&t, cmp[i].nsigma);
+        sb_text(&t, e->cite);
+        sb_printf(&t, "\n");
+    }
+    if (t.failed) {
+        free(t.s);
+        return NULL;
+    }
+    return t.s;
+}
+
+static json_t *run_json(const cs_series *s, const series_opts *so)
+{
+    json_t *o = json_object();
+    json_object_set_new(o, "fingerprint", json_string(so->fingerprint));
+    json_object_set_new(o, "options", json_string(so->options ? so->options : ""));
+    json_object_set_new(o, "entries_total", json_integer((json_int_t)s->total));
+    if (so->shard_n) {
+        char b[64];
+        snprintf(b, sizeof b, "%zu/%zu", so->shard_k, so->shard_n);
+        json_object_set_new(o, "shard", json_string(b));
+    } else {
+        json_object_set_new(o, "shard", json_null());
+    }
+    if (so->merged)
+        json_object_set_new(o, "merged_shards", json_integer((json_int_t)so->merged));
+    json_object_set_new(o, "line", so->line ? json_string(so->line->name) : json_null());
+    json_object_set_new(o, "thickness_m", jnum(so->thickness_m));
+    json_object_set_new(o, "through_origin", json_boolean(so->flags & CS_SERIES_FIT_ORIGIN));
+    json_object_set_new(o, "inflate", json_boolean(so->flags & CS_SERIES_FIT_INFLATE));
+    return o;
+}
+
 int series_output(const cs_series *s, const series_opts *so)
 {
     int rc = 0;
@@ -330,12 +406,13 @@ int series_output(const cs_series *s, const series_opts *so)
 
     if (so->json) {
         json_t *root = json_object();
-        json_object_set_new(root, "command", json_string("series"));
+        json_object_set_new(root, "command", json_string(so->command ? so->command : "series"));
         json_object_set_new(root, "manifest", json_string(s->manifest));
         json_object_set_new(root, "conventions", json_string(CS_THEORY_CONVENTIONS));
         json_object_set_new(root, "model", json_string(so->p.model));
         json_object_set_new(root, "spectrum_eras", json_string("broadest component = burst, narrowest = tail"));
         json_object_set_new(root, "threads", json_integer(so->p.threads));
+        json_object_set_new(root, "run", run_json(s, so));
         json_t *je = json_array();
         for (size_t i = 0; i < s->n; i++)
             json_array_append_new(je, entry_json(&s->e[i]));
@@ -376,6 +453,18 @@ int series_output(const cs_series *s, const series_opts *so)
             rc = CLI_EXIT_DATA;
         } else {
             int w = cli_write_text(so->table, t);
+            if (w)
+                rc = w;
+            free(t);
+        }
+    }
+    if (so->theory_table) {
+        char *t = make_theory_table(reg, have_theory ? &est : NULL, cmp, ncmp);
+        if (!t) {
+            cli_errorf("series: out of memory");
+            rc = CLI_EXIT_DATA;
+        } else {
+            int w = cli_write_text(so->theory_table, t);
             if (w)
                 rc = w;
             free(t);
