@@ -1,8 +1,10 @@
 /* `collshift fit`: fit a sum of line profiles plus a baseline to one or more spectra. */
 #include "cli.h"
+#include "plotcli.h"
 
 #include <collshift/fit.h>
 #include <collshift/model.h>
+#include <collshift/plot.h>
 #include <collshift/report.h>
 
 #include <errno.h>
@@ -51,6 +53,11 @@ const char *const cmd_fit_usage[] = {
     "  --json FILE           results as JSON ('-' for standard output)\n"
     "  --table FILE          one CSV row per spectrum and component (center_hz, center_hz_err, ...)\n"
     "  --residuals FILE      CSV of frequency_hz, data, model and residual per point\n"
+    "  --plot FILE           figure of the spectrum with each fitted component (drawn on the\n"
+    "                        baseline), the total and a residual panel; PNG, SVG or PDF from the\n"
+    "                        extension; with several spectra FILE_STEM.EXT per spectrum\n"
+    "                        (fit.png -> fit_run1.png); an unknown extension is an error (exit 3)\n"
+    "                        reported after the other outputs are written\n"
     "  --quiet               no summary on standard output\n"
     "\n",
     CLI_LOAD_OPTIONS_HELP,
@@ -76,7 +83,7 @@ typedef struct fit_opts {
     cs_fit_parameters par;
     const char *compare[MAX_LIST];
     size_t ncompare;
-    const char *json, *table, *residuals;
+    const char *json, *table, *residuals, *plot;
     int quiet;
 } fit_opts;
 
@@ -141,7 +148,7 @@ static int push(const char **list, size_t *n, const char *opt, const char *arg)
 enum {
     O_MODEL = 1, O_BASELINE, O_TRANS, O_START, O_FIX, O_BOUND, O_TIE, O_RANGE, O_EXCLUDE, O_REF,
     O_WEIGHTS, O_GEODESIC, O_MAXITER, O_MULTI, O_BOOT, O_MC, O_SEED, O_COMPARE, O_JSON, O_TABLE,
-    O_RESID, O_QUIET
+    O_RESID, O_QUIET, O_PLOT
 };
 
 static int parse_args(int argc, char **argv, fit_opts *fo, cs_load_options *lo)
@@ -169,6 +176,7 @@ static int parse_args(int argc, char **argv, fit_opts *fo, cs_load_options *lo)
         {"table", required_argument, NULL, O_TABLE},
         {"residuals", required_argument, NULL, O_RESID},
         {"quiet", no_argument, NULL, O_QUIET},
+        {"plot", required_argument, NULL, O_PLOT},
         {NULL, 0, NULL, 0},
     };
     struct option longopts[64];
@@ -241,6 +249,7 @@ static int parse_args(int argc, char **argv, fit_opts *fo, cs_load_options *lo)
         case O_TABLE: fo->table = optarg; break;
         case O_RESID: fo->residuals = optarg; break;
         case O_QUIET: fo->quiet = 1; break;
+        case O_PLOT: fo->plot = optarg; break;
         case ':':
             cli_errorf("fit: option '%s' needs a value", argv[optind - 1]);
             rc = CLI_EXIT_USAGE;
@@ -601,6 +610,60 @@ static int write_residuals(table *rt, const char *path, const cs_model *m, const
     return 0;
 }
 
+/* The --plot figure of one spectrum: data, each component on the baseline, the total and the
+ * residuals. Returns 0 (the figure's name appended to `figures`) or an exit code. */
+static int plot_fit(const char *file, const cs_model *m, const cs_spectrum *s, json_t *figures)
+{
+    size_t n = s->n, nc = m->ncomp;
+    double *p = malloc(m->nparams * sizeof *p), *q = malloc(m->nparams * sizeof *q);
+    double *total = malloc(n * sizeof *total), *work = malloc(n * sizeof *work);
+    double *comp = malloc((nc ? nc : 1) * n * sizeof *comp);
+    const double **cptr = malloc((nc ? nc : 1) * sizeof *cptr);
+    char (*labels)[96] = malloc((nc ? nc : 1) * sizeof *labels);
+    const char **lptr = malloc((nc ? nc : 1) * sizeof *lptr);
+    int rc = 0;
+    cs_error err;
+    cs_error_clear(&err);
+    if (!p || !q || !total || !work || !comp || !cptr || !labels || !lptr) {
+        cli_errorf("'%s': out of memory", file);
+        rc = CLI_EXIT_DATA;
+        goto done;
+    }
+    cs_model_get_values(m, p);
+    cs_model_eval(m, p, s->freq_hz, n, total, work);
+    for (size_t k = 0; k < nc; k++) {
+        /* component k alone: every other component's area (or optical depth) set to zero */
+        memcpy(q, p, m->nparams * sizeof *q);
+        for (size_t j = 0; j < nc; j++)
+            if (j != k)
+                q[m->comp[j].first + cs_profile_area_index(m->comp[j].type)] = 0.0;
+        cs_model_eval(m, q, s->freq_hz, n, comp + k * n, work);
+        cptr[k] = comp + k * n;
+        snprintf(labels[k], sizeof labels[k], "%zu: %s", k + 1, m->comp[k].type->name);
+        lptr[k] = labels[k];
+    }
+    cs_plot_spectrum_data d;
+    memset(&d, 0, sizeof d);
+    d.n = n;
+    d.freq_hz = s->freq_hz;
+    d.y = s->y;
+    d.sigma = s->sigma;
+    d.total = total;
+    d.ncomp = nc;
+    d.comp = cptr;
+    d.comp_label = lptr;
+    d.y_quantity = m->mode == CS_MODEL_TRANSMISSION ? "transmission" : NULL;
+    cs_plot_options o;
+    cs_plot_options_init(&o);
+    if (cs_plot_spectrum(file, &d, &o, &err) != CS_OK)
+        rc = cli_plot_failed(file, &err);
+    else
+        json_array_append_new(figures, json_string(file));
+done:
+    free(p); free(q); free(total); free(work); free(comp); free(cptr); free(labels); free(lptr);
+    return rc;
+}
+
 int cmd_fit(int argc, char **argv)
 {
     fit_opts fo;
@@ -630,7 +693,8 @@ int cmd_fit(int argc, char **argv)
     }
 
     int worst = CLI_EXIT_OK;
-    json_t *fits = json_array();
+    json_t *fits = json_array(), *figures = json_array();
+    int several = argc - optind > 1, plot_rc = 0;
     table tab = {0}, resid = {0};
     cs_fit_workspace *ws = NULL;
     for (int a = optind; a < argc; a++) {
@@ -701,6 +765,13 @@ int cmd_fit(int argc, char **argv)
                 json_t *o = report_fit(path, m, r, &fo, have_ref, ref, &tab);
                 if (fo.residuals)
                     write_residuals(&resid, path, m, s, mask);
+                if (fo.plot) {
+                    char name[1024];
+                    cli_plot_name_for(name, sizeof name, fo.plot, path, several);
+                    int w = plot_fit(name, m, s, figures);
+                    if (w && !plot_rc)
+                        plot_rc = w;
+                }
                 if (cmp)
                     json_object_set_new(o, "comparison", cmp);
                 json_array_append_new(fits, o);
@@ -767,6 +838,8 @@ int cmd_fit(int argc, char **argv)
                                                              "decay rates in s^-1 (gamma = 2 pi x Lorentzian FWHM); "
                                                              "shift = centre minus reference"));
         json_object_set_new(root, "fits", fits);
+        json_object_set_new(root, "figures", figures);
+        figures = NULL;
         char *text = json_dumps(root, JSON_INDENT(2) | JSON_REAL_PRECISION(15));
         json_decref(root);
         if (text) {
@@ -780,5 +853,8 @@ int cmd_fit(int argc, char **argv)
     } else {
         json_decref(fits);
     }
+    json_decref(figures);
+    if (plot_rc > worst)
+        worst = plot_rc;
     return worst;
 }

@@ -1,11 +1,13 @@
 /* `collshift gate`: envelope, burst detection, decay diagnostics and gated spectra of time records. */
 #include "cli.h"
+#include "plotcli.h"
 
 #include <collshift/fit.h>
 #include <collshift/gate.h>
 #include <collshift/gatefit.h>
 #include <collshift/model.h>
 #include <collshift/pencil.h>
+#include <collshift/plot.h>
 #include <collshift/report.h>
 
 #include <errno.h>
@@ -50,6 +52,13 @@ const char *const cmd_gate_usage[] = {
     "  --spectrogram FILE    short-time spectra as CSV (time_s, frequency_hz, psd)\n"
     "  --segment N, --hop N  spectrogram segment length and hop in samples (default 256, 64)\n"
     "  --json FILE           everything as JSON ('-' for standard output)\n"
+    "  --plot-envelope FILE  figure of the smoothed envelope (intensity against time, logarithmic\n"
+    "                        axis) with the gates shaded; PNG, SVG or PDF from the extension\n"
+    "  --plot-spectrogram FILE  figure of the spectrogram with the gates (computed with --segment,\n"
+    "                        --hop or their defaults when --spectrogram is not given)\n"
+    "                        With several records the figures are FILE_STEM.EXT per record; a\n"
+    "                        figure that cannot be drawn (e.g. an unknown extension) gives exit 3\n"
+    "                        after the other outputs are written\n"
     "  --measure             plan transforms with FFTW_MEASURE and keep the wisdom in the cache\n"
     "  --quiet               no summary on standard output\n"
     "\n",
@@ -72,7 +81,7 @@ typedef struct gate_opts {
     double lo_hz;
     cs_gate_average average;
     const char *fit;
-    const char *out, *spectrogram, *json;
+    const char *out, *spectrogram, *json, *plot_env, *plot_sg;
     size_t segment, hop;
     int measure, quiet;
     int window_given;
@@ -80,7 +89,7 @@ typedef struct gate_opts {
 
 enum {
     G_GATE = 1, G_WINDOW, G_PAD, G_LO, G_AVERAGE, G_FIT, G_OUT, G_SPECTRO, G_SEGMENT, G_HOP, G_JSON,
-    G_MEASURE, G_QUIET
+    G_MEASURE, G_QUIET, G_PLOT_ENV, G_PLOT_SG
 };
 
 static int parse_count(const char *opt, const char *arg, size_t lo, size_t hi, size_t *out)
@@ -112,6 +121,8 @@ static int parse_args(int argc, char **argv, gate_opts *go, cs_load_options *lo)
         {"json", required_argument, NULL, G_JSON},
         {"measure", no_argument, NULL, G_MEASURE},
         {"quiet", no_argument, NULL, G_QUIET},
+        {"plot-envelope", required_argument, NULL, G_PLOT_ENV},
+        {"plot-spectrogram", required_argument, NULL, G_PLOT_SG},
         {NULL, 0, NULL, 0},
     };
     struct option longopts[64];
@@ -164,6 +175,8 @@ static int parse_args(int argc, char **argv, gate_opts *go, cs_load_options *lo)
         case G_JSON: go->json = optarg; break;
         case G_MEASURE: go->measure = 1; break;
         case G_QUIET: go->quiet = 1; break;
+        case G_PLOT_ENV: go->plot_env = optarg; break;
+        case G_PLOT_SG: go->plot_sg = optarg; break;
         case ':':
             cli_errorf("gate: option '%s' needs a value", argv[optind - 1]);
             rc = CLI_EXIT_USAGE;
@@ -484,8 +497,51 @@ static json_t *pencil_gate(const cs_record *rec, const cs_gate *g, const cs_burs
 }
 
 /* Analyse one file; returns its JSON object. */
+/* The gates as the figures name them (absolute times). */
+static size_t plot_gates(const cs_gate *gates, size_t ng, cs_plot_gate *pg)
+{
+    for (size_t k = 0; k < ng; k++) {
+        pg[k].name = gates[k].name;
+        pg[k].start_s = gates[k].t_start_s;
+        pg[k].length_s = gates[k].length_s;
+    }
+    return ng;
+}
+
+/* --plot-envelope: the smoothed envelope on a logarithmic axis with the gates. */
+static int plot_envelope_fig(const char *file, const cs_envelope *env, const cs_plot_gate *pg, size_t ng,
+                             json_t *figures)
+{
+    double *t = malloc((env->n ? env->n : 1) * sizeof *t);
+    if (!t) {
+        cli_errorf("'%s': out of memory", file);
+        return CLI_EXIT_DATA;
+    }
+    for (size_t i = 0; i < env->n; i++)
+        t[i] = env->t0_s + (double)i * env->dt_s;
+    cs_plot_envelope_data d;
+    memset(&d, 0, sizeof d);
+    d.n = env->n;
+    d.t_s = t;
+    d.intensity = env->smooth ? env->smooth : env->intensity;
+    d.log_y = 1;
+    d.ngates = ng;
+    d.gates = ng ? pg : NULL;
+    cs_plot_options o;
+    cs_plot_options_init(&o);
+    cs_error err;
+    cs_error_clear(&err);
+    int rc = 0;
+    if (cs_plot_envelope(file, &d, &o, &err) != CS_OK)
+        rc = cli_plot_failed(file, &err);
+    else
+        json_array_append_new(figures, json_string(file));
+    free(t);
+    return rc;
+}
+
 static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opts *go, const cs_load_options *lo,
-                         int several, int *worst)
+                         int several, int *worst, json_t *figures)
 {
     char b1[64], b2[64], b3[64], b4[64], b5[64];
     cs_error err;
@@ -671,7 +727,16 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
     }
     json_object_set_new(jf, "gates", jg);
 
-    if (go->spectrogram) {
+    cs_plot_gate pg[MAX_GATES];
+    size_t npg = ok ? plot_gates(gates, ng, pg) : 0;
+    if (go->plot_env && env) {
+        char name[1024];
+        cli_plot_name_for(name, sizeof name, go->plot_env, path, several);
+        int w = plot_envelope_fig(name, env, pg, npg, figures);
+        if (w > *worst)
+            *worst = w;
+    }
+    if (go->spectrogram || go->plot_sg) {
         cs_spectrogram_params sp;
         cs_spectrogram_params_default(&sp);
         if (go->segment)
@@ -681,17 +746,42 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
         sp.window = go->window;
         sp.lo_hz = lo_hz;
         cs_spectrogram *sg = NULL;
-        char name[1024];
-        if (several) {
+        char name[1024] = "";
+        if (go->spectrogram && several) {
             out_name(name, sizeof name, go->spectrogram, path, 1, "spectrogram");
-        } else {
+        } else if (go->spectrogram) {
             snprintf(name, sizeof name, "%s", go->spectrogram);
         }
-        if (cs_spectrogram_compute(ws, rec, &sp, &sg, &err) != CS_OK || cs_spectrogram_write_csv(name, sg, &err) != CS_OK) {
+        if (cs_spectrogram_compute(ws, rec, &sp, &sg, &err) != CS_OK ||
+            (go->spectrogram && cs_spectrogram_write_csv(name, sg, &err) != CS_OK)) {
             cli_errorf("'%s': spectrogram: %s", path, err.msg);
             *worst = cli_exit_code(err.code) > *worst ? cli_exit_code(err.code) : *worst;
-        } else {
+        } else if (go->spectrogram) {
             json_object_set_new(jf, "spectrogram", json_string(name));
+        }
+        if (go->plot_sg && sg) {
+            char fig[1024];
+            cli_plot_name_for(fig, sizeof fig, go->plot_sg, path, several);
+            cs_plot_spectrogram_data d;
+            memset(&d, 0, sizeof d);
+            d.ntime = sg->ntime;
+            d.nfreq = sg->nfreq;
+            d.time_s = sg->time_s;
+            d.freq_hz = sg->freq_hz;
+            d.psd = sg->psd;
+            d.ngates = npg;
+            d.gates = npg ? pg : NULL;
+            cs_plot_options o;
+            cs_plot_options_init(&o);
+            cs_error perr;
+            cs_error_clear(&perr);
+            if (cs_plot_spectrogram(fig, &d, &o, &perr) != CS_OK) {
+                int w = cli_plot_failed(fig, &perr);
+                if (w > *worst)
+                    *worst = w;
+            } else {
+                json_array_append_new(figures, json_string(fig));
+            }
         }
         cs_spectrogram_free(sg);
     }
@@ -742,10 +832,10 @@ int cmd_gate(int argc, char **argv)
     if (go.measure)
         cs_gate_set_effort(ws, CS_GATE_EFFORT_MEASURE);
     int worst = CLI_EXIT_OK;
-    json_t *files = json_array();
+    json_t *files = json_array(), *figures = json_array();
     int several = argc - optind > 1;
     for (int a = optind; a < argc; a++)
-        json_array_append_new(files, gate_file(ws, argv[a], &go, &lo, several, &worst));
+        json_array_append_new(files, gate_file(ws, argv[a], &go, &lo, several, &worst, figures));
     cs_gate_free(ws);
     if (go.measure)
         cs_gate_wisdom_save(NULL, NULL);
@@ -756,6 +846,8 @@ int cmd_gate(int argc, char **argv)
                                                              "first sample); frequencies in cyclic Hz with the LO added; "
                                                              "PSD in signal^2/Hz"));
         json_object_set_new(root, "files", files);
+        json_object_set_new(root, "figures", figures);
+        figures = NULL;
         char *text = json_dumps(root, JSON_INDENT(2) | JSON_REAL_PRECISION(15));
         json_decref(root);
         if (text) {
@@ -769,5 +861,6 @@ int cmd_gate(int argc, char **argv)
     } else {
         json_decref(files);
     }
+    json_decref(figures);
     return worst;
 }

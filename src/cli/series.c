@@ -61,6 +61,15 @@ const char *const cmd_series_usage[] = {
     "                        slope_hz_cm3_err, ratio (measured/theory), nsigma ((measured -\n"
     "                        theory)/error), source\n"
     "  --quiet               no summary on standard output\n"
+    "  --plot-shift FILE     figure of shift (centre - reference; without references, centre -\n"
+    "                        the fitted intercept) against density with error bars, the weighted\n"
+    "                        regression and, with --line, the Lorentz-Lorenz and slab (LL + CLS)\n"
+    "                        estimates as lines; PNG, SVG or PDF from the extension\n"
+    "  --plot-fwhm FILE      figure of FWHM against density with the regression and, with --line,\n"
+    "                        the self-broadening estimate (drawn from the fitted intercept)\n"
+    "                        One figure per era: FILE for the tail era, FILE_burst.EXT for the\n"
+    "                        burst era (each when the era has points); a figure that cannot be\n"
+    "                        drawn gives exit 3 after the other outputs are written\n"
     "A progress line is shown on standard error when it is a terminal.\n"
     "\n"
     "More than one machine:\n"
@@ -85,7 +94,8 @@ const char *const cmd_series_usage[] = {
 
 enum {
     O_LINE = 1, O_THICK, O_ELEMENT, O_THREADS, O_MODEL, O_BASELINE, O_REF, O_GATE, O_BURST_MODEL,
-    O_TAIL_MODEL, O_ORIGIN, O_INFLATE, O_JSON, O_TABLE, O_QUIET, O_SHARD, O_THEORY_TABLE
+    O_TAIL_MODEL, O_ORIGIN, O_INFLATE, O_JSON, O_TABLE, O_QUIET, O_SHARD, O_THEORY_TABLE, O_PLOT_SHIFT,
+    O_PLOT_FWHM
 };
 
 /* Append "--name[=value]\n" to the options text (the fingerprint's input). */
@@ -120,6 +130,8 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
         {"quiet", no_argument, NULL, O_QUIET},
         {"shard", required_argument, NULL, O_SHARD},
         {"theory-table", required_argument, NULL, O_THEORY_TABLE},
+        {"plot-shift", required_argument, NULL, O_PLOT_SHIFT},
+        {"plot-fwhm", required_argument, NULL, O_PLOT_FWHM},
         {NULL, 0, NULL, 0},
     };
     struct option longopts[64];
@@ -135,7 +147,7 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
         return CLI_EXIT_DATA;
     while (rc == 0 && (li = -1, c = getopt_long(argc, argv, ":", longopts, &li)) != -1) {
         if (li >= 0 && c != O_THREADS && c != O_JSON && c != O_TABLE && c != O_QUIET && c != O_SHARD &&
-            c != O_THEORY_TABLE && add_option_text(opt_text, &tlen, longopts[li].name,
+            c != O_THEORY_TABLE && c != O_PLOT_SHIFT && c != O_PLOT_FWHM && add_option_text(opt_text, &tlen, longopts[li].name,
                                                    longopts[li].has_arg ? optarg : NULL)) {
             cli_errorf("series: out of memory");
             return CLI_EXIT_DATA;
@@ -204,6 +216,8 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
         case O_TABLE: so->table = optarg; break;
         case O_QUIET: so->quiet = 1; break;
         case O_THEORY_TABLE: so->theory_table = optarg; break;
+        case O_PLOT_SHIFT: so->plot_shift = optarg; break;
+        case O_PLOT_FWHM: so->plot_fwhm = optarg; break;
         case O_SHARD:
             if (cs_series_shard_parse(optarg, &so->shard_k, &so->shard_n, &err) != CS_OK) {
                 cli_errorf("--shard '%s': %s", optarg, err.msg);

@@ -1,7 +1,9 @@
 /* `collshift series` output: summary, per-density table, regressions, theory, JSON and CSV. */
 #include "cli.h"
 #include "series_out.h"
+#include "plotcli.h"
 
+#include <collshift/plot.h>
 #include <collshift/report.h>
 
 #include <jansson.h>
@@ -348,6 +350,130 @@ static json_t *run_json(const cs_series *s, const series_opts *so)
     return o;
 }
 
+/* One density figure (shift or FWHM) of one era; nothing when the era has no points. Returns 0
+ * or an exit code; the figure's name is appended to `figures`. */
+static int plot_era(const char *file, const cs_series *s, cs_split_era era, cs_series_quantity q,
+                    const cs_series_regression *reg, const cs_theory_estimates *est, json_t *figures)
+{
+    const cs_series_regression *r = &reg[era * CS_SERIES_NQ + q];
+    int fit_ok = r->status == CS_OK && isfinite(r->fit.slope);
+    /* without references the centres are shown against the fitted low-density limit */
+    double offset = (q == CS_SERIES_Q_CENTER && !r->relative && fit_ok) ? r->fit.intercept : 0.0;
+    double *x = malloc((s->n ? s->n : 1) * 3 * sizeof *x);
+    if (!x) {
+        cli_errorf("'%s': out of memory", file);
+        return CLI_EXIT_DATA;
+    }
+    double *y = x + s->n, *ey = y + s->n;
+    size_t n = 0;
+    for (size_t i = 0; i < s->n; i++) {
+        const cs_series_entry *e = &s->e[i];
+        const cs_series_line *l = &e->era_line[era];
+        if (e->status == CS_SERIES_FAILED || !l->ok || !isfinite(e->density_used_m3))
+            continue;
+        double v, dv;
+        if (q == CS_SERIES_Q_FWHM) {
+            v = l->fwhm_hz;
+            dv = l->fwhm_hz_err;
+        } else if (r->relative || (isfinite(l->shift_hz) && !fit_ok)) {
+            v = l->shift_hz;
+            dv = l->shift_hz_err;
+        } else {
+            v = l->center_hz - offset;
+            dv = l->center_hz_err;
+        }
+        if (!isfinite(v))
+            continue;
+        x[n] = e->density_used_m3;
+        y[n] = v;
+        ey[n] = dv;
+        n++;
+    }
+    if (n == 0) {
+        free(x);
+        return 0;
+    }
+    cs_plot_line th[2];
+    size_t nth = 0;
+    if (est) {
+        static const cs_theory_quantity shift_q[] = {CS_TH_LL_COEF, CS_TH_SLAB_COEF};
+        if (q == CS_SERIES_Q_CENTER) {
+            for (size_t k = 0; k < 2; k++) {
+                const cs_estimate *te = &est->e[shift_q[k]];
+                if (te->status != CS_EST_OK || !isfinite(te->value))
+                    continue;
+                th[nth].label = k == 0 ? "Lorentz-Lorenz" : "slab (LL + CLS)";
+                th[nth].slope_hz_m3 = te->value * 1e-6;
+                th[nth].intercept_hz = 0.0;
+                nth++;
+            }
+        } else {
+            const cs_estimate *te = &est->e[CS_TH_SELF_COEF];
+            if (te->status == CS_EST_OK && isfinite(te->value)) {
+                th[nth].label = "self-broadening";
+                th[nth].slope_hz_m3 = te->value * 1e-6;
+                th[nth].intercept_hz = fit_ok ? r->fit.intercept : 0.0;
+                nth++;
+            }
+        }
+    }
+    cs_plot_density_data d;
+    memset(&d, 0, sizeof d);
+    d.n = n;
+    d.density_m3 = x;
+    d.value_hz = y;
+    d.err_hz = ey;
+    d.data_label = era == CS_SPLIT_BURST ? "burst era" : "tail era";
+    d.has_fit = fit_ok;
+    d.fit.label = "weighted fit";
+    d.fit.slope_hz_m3 = r->fit.slope * 1e-6;
+    d.fit.intercept_hz = r->fit.intercept - offset;
+    d.ntheory = nth;
+    d.theory = nth ? th : NULL;
+    cs_plot_options o;
+    cs_plot_options_init(&o);
+    cs_error err;
+    cs_error_clear(&err);
+    int rc = q == CS_SERIES_Q_FWHM ? cs_plot_fwhm_density(file, &d, &o, &err)
+                                   : cs_plot_shift_density(file, &d, &o, &err);
+    free(x);
+    if (rc != CS_OK)
+        return cli_plot_failed(file, &err);
+    json_array_append_new(figures, json_string(file));
+    return 0;
+}
+
+/* --plot-shift and --plot-fwhm: FILE for the tail era, FILE_burst.EXT for the burst era. */
+static int series_plots(const cs_series *s, const series_opts *so, const cs_series_regression *reg,
+                        const cs_theory_estimates *est, json_t *figures)
+{
+    int rc = 0;
+    const char *files[CS_SERIES_NQ] = {so->plot_shift, so->plot_fwhm};
+    for (int q = 0; q < CS_SERIES_NQ; q++) {
+        if (!files[q])
+            continue;
+        size_t before = json_array_size(figures);
+        int failed = 0;
+        for (int e = CS_SPLIT_NERA - 1; e >= 0; e--) {
+            char name[1024];
+            if (e == CS_SPLIT_BURST)
+                cli_plot_name(name, sizeof name, files[q], "burst");
+            else
+                snprintf(name, sizeof name, "%s", files[q]);
+            int w = plot_era(name, s, (cs_split_era)e, (cs_series_quantity)q, reg, est, figures);
+            if (w) {
+                failed = 1;
+                rc = rc > w ? rc : w;
+            }
+        }
+        if (!failed && json_array_size(figures) == before) {
+            cli_errorf("'%s': no measured points to plot", files[q]);
+            rc = rc > CLI_EXIT_DATA ? rc : CLI_EXIT_DATA;
+        }
+    }
+    return rc;
+}
+
 int series_output(const cs_series *s, const series_opts *so)
 {
     int rc = 0;
@@ -403,6 +529,9 @@ int series_output(const cs_series *s, const series_opts *so)
     }
     if (!so->quiet)
         print_summary(s, so, ord, reg, have_theory ? &est : NULL, cmp, ncmp);
+    json_t *figures = json_array();
+    int plot_rc = (so->plot_shift || so->plot_fwhm)
+                      ? series_plots(s, so, reg, have_theory ? &est : NULL, figures) : 0;
 
     if (so->json) {
         json_t *root = json_object();
@@ -428,6 +557,8 @@ int series_output(const cs_series *s, const series_opts *so)
                             json_string(inflated ? "errors multiplied by sqrt(chi2/dof) where chi2/dof > 1 (--inflate)"
                                                  : "errors from the stated errors of the points"));
         json_object_set_new(root, "theory", have_theory ? theory_json(&est, cmp, ncmp) : json_null());
+        json_object_set_new(root, "figures", figures);
+        figures = NULL;
         char *text = json_dumps(root, JSON_INDENT(2) | JSON_REAL_PRECISION(17));
         json_decref(root);
         if (!text) {
@@ -470,6 +601,7 @@ int series_output(const cs_series *s, const series_opts *so)
             free(t);
         }
     }
+    json_decref(figures);
     free(ord);
-    return rc;
+    return plot_rc > rc ? plot_rc : rc;
 }

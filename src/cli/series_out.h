@@ -12,6 +12,8 @@ typedef struct series_opts {
     unsigned flags;           /* CS_SERIES_FIT_* */
     const char *manifest, *json, *table;
     const char *theory_table; /* --theory-table: the theory comparison as CSV */
+    const char *plot_shift;   /* --plot-shift FILE, or NULL */
+    const char *plot_fwhm;    /* --plot-fwhm FILE, or NULL */
     int quiet;
     /* the run, written to the JSON's "run" object so that `collshift merge` can combine shards */
     const char *command;      /* "series" or "merge" */

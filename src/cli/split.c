@@ -1,7 +1,9 @@
 /* `collshift split`: burst-era and tail-era lines of time records, their shifts, cross-checks,
  * shot statistics and the gate sweep. */
 #include "cli.h"
+#include "plotcli.h"
 
+#include <collshift/plot.h>
 #include <collshift/report.h>
 #include <collshift/split.h>
 
@@ -73,6 +75,9 @@ const char *const cmd_split_usage[] = {
     "  --table FILE          CSV, one row per shot and era (center_hz, center_hz_err, fwhm_hz, ...,\n"
     "                        shift_hz, era_shift_hz, cross-checks)\n"
     "  --quiet               no summary on standard output\n"
+    "  --plot FILE           figure of the first shot's smoothed envelope (logarithmic axis) with\n"
+    "                        its early and late gates; PNG, SVG or PDF from the extension (a\n"
+    "                        figure that cannot be drawn gives exit 3 after the other outputs)\n"
     "\n",
     CLI_LOAD_OPTIONS_HELP,
     "\n"
@@ -90,13 +95,13 @@ typedef struct split_opts {
     const char *early_spec, *late_spec;
     char early_buf[CS_SPLIT_TEXT_MAX], late_buf[CS_SPLIT_TEXT_MAX];
     const char *noise_text, *sweep_text;
-    const char *json, *table, *sweep_table;
+    const char *json, *table, *sweep_table, *plot;
     int quiet;
 } split_opts;
 
 enum {
     S_GATE = 1, S_WINDOW, S_LATE_WINDOW, S_WHOLE_WINDOW, S_PAD, S_LO, S_REF, S_BURST_MODEL, S_TAIL_MODEL,
-    S_WHOLE_MODEL, S_NOISE, S_NO_PENCIL, S_AGREE, S_POWER, S_SWEEP, S_SWEEP_TABLE, S_JSON, S_TABLE, S_QUIET
+    S_WHOLE_MODEL, S_NOISE, S_NO_PENCIL, S_AGREE, S_POWER, S_SWEEP, S_SWEEP_TABLE, S_JSON, S_TABLE, S_QUIET, S_PLOT
 };
 
 static int usage_error(const char *fmt, ...)
@@ -197,6 +202,7 @@ static int parse_args(int argc, char **argv, split_opts *so, cs_load_options *lo
         {"json", required_argument, NULL, S_JSON},
         {"table", required_argument, NULL, S_TABLE},
         {"quiet", no_argument, NULL, S_QUIET},
+        {"plot", required_argument, NULL, S_PLOT},
         {NULL, 0, NULL, 0},
     };
     struct option longopts[64];
@@ -277,6 +283,7 @@ static int parse_args(int argc, char **argv, split_opts *so, cs_load_options *lo
         case S_JSON: so->json = optarg; break;
         case S_TABLE: so->table = optarg; break;
         case S_QUIET: so->quiet = 1; break;
+        case S_PLOT: so->plot = optarg; break;
         case ':': rc = usage_error("split: option '%s' needs a value", argv[optind - 1]); break;
         case '?': rc = usage_error("split: unknown option '%s'; see 'collshift split --help'", argv[optind - 1]); break;
         default: rc = cli_load_option(c, optarg, lo); break;
@@ -868,6 +875,55 @@ static int worse(int a, int b)
     return b > a ? b : a;
 }
 
+/* --plot: the first shot's envelope with its early and late gates. Returns 0 or an exit code. */
+static int plot_split(const char *file, cs_gate_workspace *ws, const cs_record *rec, const cs_split_shot *shot,
+                      json_t *figures)
+{
+    cs_error err;
+    cs_error_clear(&err);
+    cs_envelope *env = NULL;
+    if (cs_envelope_compute(ws, rec, NULL, &env, &err) != CS_OK)
+        return cli_plot_failed(file, &err);
+    double *t = malloc((env->n ? env->n : 1) * sizeof *t);
+    if (!t) {
+        cs_envelope_free(env);
+        cli_errorf("'%s': out of memory", file);
+        return CLI_EXIT_DATA;
+    }
+    for (size_t i = 0; i < env->n; i++)
+        t[i] = env->t0_s + (double)i * env->dt_s;
+    static const char *const names[CS_SPLIT_NERA] = {"early", "late"};
+    cs_plot_gate pg[CS_SPLIT_NERA];
+    size_t ng = 0;
+    for (int e = 0; shot && e < CS_SPLIT_NERA; e++) {
+        const cs_split_fit *f = &shot->era[e];
+        if (!f->gate_ok)
+            continue;
+        pg[ng].name = names[e];
+        pg[ng].start_s = f->gate.t_start_s;
+        pg[ng].length_s = f->gate.length_s;
+        ng++;
+    }
+    cs_plot_envelope_data d;
+    memset(&d, 0, sizeof d);
+    d.n = env->n;
+    d.t_s = t;
+    d.intensity = env->smooth ? env->smooth : env->intensity;
+    d.log_y = 1;
+    d.ngates = ng;
+    d.gates = ng ? pg : NULL;
+    cs_plot_options o;
+    cs_plot_options_init(&o);
+    int rc = 0;
+    if (cs_plot_envelope(file, &d, &o, &err) != CS_OK)
+        rc = cli_plot_failed(file, &err);
+    else
+        json_array_append_new(figures, json_string(file));
+    free(t);
+    cs_envelope_free(env);
+    return rc;
+}
+
 int cmd_split(int argc, char **argv)
 {
     split_opts so;
@@ -884,8 +940,9 @@ int cmd_split(int argc, char **argv)
     cs_loaded *files = calloc((size_t)nfiles, sizeof *files);
     size_t nrec = 0, cap = 0;
     cs_record **recs = NULL;
-    json_t *jfiles = json_array();
+    json_t *jfiles = json_array(), *figures = json_array();
     if (!files) {
+        json_decref(figures);
         cli_errorf("out of memory");
         json_decref(jfiles);
         return CLI_EXIT_DATA;
@@ -941,6 +998,9 @@ int cmd_split(int argc, char **argv)
         cs_error err;
         cs_error_clear(&err);
         int src = ws ? cs_split_run(ws, recs, nrec, &so.p, &res, &err) : CS_ENOMEM;
+        if (so.plot && ws)
+            worst = worse(worst, plot_split(so.plot, ws, recs[0], res && res->nshots ? &res->shots[0] : NULL,
+                                            figures));
         cs_gate_free(ws);
         if (src == CS_ENOCONV) {
             worst = worse(worst, CLI_EXIT_ANALYSIS);
@@ -1008,6 +1068,8 @@ int cmd_split(int argc, char **argv)
         json_object_set_new(root, "settings", settings_json(&so));
         json_object_set_new(root, "files", jfiles);
         jfiles = NULL;
+        json_object_set_new(root, "figures", figures);
+        figures = NULL;
         json_object_set_new(root, "status", json_string(res ? cs_split_status_name(res->status) : "failed"));
         if (res) {
             json_t *shots = json_array();
@@ -1075,6 +1137,7 @@ int cmd_split(int argc, char **argv)
         }
     }
     json_decref(jfiles);
+    json_decref(figures);
     cs_split_result_free(res);
     free(recs);
     for (int a = 0; a < nfiles; a++)
