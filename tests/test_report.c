@@ -1,8 +1,12 @@
-/* Tests of the report module: value(error) notation and atomic output files. */
+/* Tests of the report module: value(error) notation, atomic output files, SHA-256 checksums and
+ * the Markdown / JSON run reports. */
 #include <check.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+
+#include <jansson.h>
 
 #include <collshift/report.h>
 #include "testutil.h"
@@ -74,6 +78,99 @@ START_TEST(test_atomic_write)
 }
 END_TEST
 
+
+/* FIPS 180-2, Appendix B.1 and B.2: SHA-256 of "abc" and of the 448-bit two-block message. */
+START_TEST(test_sha256_vectors)
+{
+    char hex[65];
+    cs_error err;
+    cs_error_clear(&err);
+    ck_assert_int_eq(cs_sha256_hex("abc", 3, hex, &err), CS_OK);
+    ck_assert_str_eq(hex, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    const char *m2 = "abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
+    ck_assert_int_eq(cs_sha256_hex(m2, strlen(m2), hex, &err), CS_OK);
+    ck_assert_str_eq(hex, "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1");
+    /* a file gives the digest of its bytes */
+    const char *p = tu_tmp_path("abc.txt");
+    ck_assert_int_eq(cs_write_atomic(p, "abc", 3, &err), CS_OK);
+    ck_assert_int_eq(cs_sha256_file(p, hex, &err), CS_OK);
+    ck_assert_str_eq(hex, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    ck_assert_int_eq(cs_sha256_file("/nonexistent-dir/x", hex, &err), CS_EIO);
+}
+END_TEST
+
+/* The Markdown writer: title, inputs table with checksums, sections, fields and values in the
+ * value(error) notation, pipe tables (with '|' escaped), figure links; the JSON holds the same. */
+START_TEST(test_markdown_structure)
+{
+    cs_error err;
+    cs_error_clear(&err);
+    const char *in = tu_tmp_path("input.csv");
+    ck_assert_int_eq(cs_write_atomic(in, "abc", 3, &err), CS_OK);
+    cs_report *r = cs_report_alloc("Run");
+    ck_assert_ptr_nonnull(r);
+    ck_assert_int_eq(cs_report_add_input(r, "spectrum", in, &err), CS_OK);
+    ck_assert_int_eq(cs_report_section(r, "Fit"), CS_OK);
+    ck_assert_int_eq(cs_report_field(r, "model", "lorentz+lorentz"), CS_OK);
+    ck_assert_int_eq(cs_report_value(r, "2.center", -1234567.0, 15000.0, CS_DIM_FREQUENCY), CS_OK);
+    const char *cols[] = {"a", "b"};
+    ck_assert_int_eq(cs_report_table(r, "Table:", 2, cols), CS_OK);
+    const char *row[] = {"x|y", "2"};
+    ck_assert_int_eq(cs_report_row(r, row), CS_OK);
+    ck_assert_int_eq(cs_report_figure(r, "spectrum", "figures/fit.png"), CS_OK);
+    ck_assert_int_eq(cs_report_figure(r, "as PDF", "figures/fit.pdf"), CS_OK);
+    char *md = cs_report_markdown(r);
+    ck_assert_ptr_nonnull(md);
+    const char *want[] = {
+        "# Run\n",
+        "\n## Inputs\n\n| role | file | bytes | SHA-256 |\n|---|---|---|---|\n",
+        " 3 | `ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad` |\n",
+        "\n## Fit\n\n- **model**: lorentz+lorentz\n- **2.center**: -1.235(15) MHz\n",
+        "\nTable:\n\n| a | b |\n|---|---|\n| x\\|y | 2 |\n",
+        "\n![spectrum](figures/fit.png)\n",
+        "\n[as PDF](figures/fit.pdf)\n",
+    };
+    for (size_t i = 0; i < sizeof want / sizeof want[0]; i++)
+        ck_assert_msg(strstr(md, want[i]) != NULL, "missing '%s' in:\n%s", want[i], md);
+    ck_assert_msg(strstr(md, "## Inputs") < strstr(md, "## Fit"), "inputs come first");
+    free(md);
+    char *js = cs_report_json(r);
+    ck_assert_ptr_nonnull(js);
+    json_error_t je;
+    json_t *root = json_loads(js, 0, &je);
+    ck_assert_ptr_nonnull(root);
+    ck_assert_str_eq(json_string_value(json_object_get(root, "title")), "Run");
+    json_t *in0 = json_array_get(json_object_get(root, "inputs"), 0);
+    ck_assert_str_eq(json_string_value(json_object_get(in0, "sha256")),
+                     "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    json_t *items = json_object_get(json_array_get(json_object_get(root, "sections"), 0), "items");
+    ck_assert_int_eq((int)json_array_size(items), 5);
+    json_t *v = json_array_get(items, 1);
+    ck_assert_str_eq(json_string_value(json_object_get(v, "text")), "-1.235(15) MHz");
+    ck_assert(json_real_value(json_object_get(v, "value")) == -1234567.0);
+    ck_assert(json_real_value(json_object_get(v, "error")) == 15000.0);
+    ck_assert_str_eq(json_string_value(json_object_get(v, "unit")), "Hz");
+    json_decref(root);
+    free(js);
+    /* outputs: never over an input, both files written */
+    ck_assert_int_eq(cs_report_write(r, in, NULL, &err), CS_EINVAL);
+    FILE *f = fopen(in, "r");
+    char buf[8] = "";
+    ck_assert_ptr_nonnull(f);
+    ck_assert_ptr_nonnull(fgets(buf, sizeof buf, f));
+    fclose(f);
+    ck_assert_str_eq(buf, "abc");
+    ck_assert_int_eq(cs_report_write(r, tu_tmp_path("r.md"), tu_tmp_path("r.json"), &err), CS_OK);
+    struct stat st;
+    ck_assert_int_eq(stat(tu_tmp_path("r.md"), &st), 0);
+    ck_assert_int_eq(stat(tu_tmp_path("r.json"), &st), 0);
+    /* a row needs its table */
+    ck_assert_int_eq(cs_report_section(r, "Empty"), CS_OK);
+    ck_assert_int_eq(cs_report_row(r, row), CS_EINVAL);
+    cs_report_free(r);
+}
+END_TEST
+
 static Suite *report_suite(void)
 {
     Suite *s = suite_create("report");
@@ -83,6 +180,10 @@ static Suite *report_suite(void)
     suite_add_tcase(s, t);
     t = tcase_create("atomic");
     tcase_add_test(t, test_atomic_write);
+    suite_add_tcase(s, t);
+    t = tcase_create("checksums_and_reports");
+    tcase_add_test(t, test_sha256_vectors);
+    tcase_add_test(t, test_markdown_structure);
     suite_add_tcase(s, t);
     return s;
 }

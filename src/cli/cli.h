@@ -43,6 +43,8 @@ int cmd_simulate(int, char **);
 extern const char *const cmd_simulate_usage[];
 int cmd_merge(int, char **);
 extern const char *const cmd_merge_usage[];
+int cmd_demo(int, char **);
+extern const char *const cmd_demo_usage[];
 
 /* Print a command's usage chunks to f. */
 void cli_print_usage(const cli_command *c, FILE *f);

@@ -19,6 +19,7 @@ static const cli_command commands[] = {
     {"series", cmd_series, "analyse a campaign of files at known densities: slopes of shift and width, theory", cmd_series_usage},
     {"simulate", cmd_simulate, "write synthetic records or spectra of an invented density series, with the true values", cmd_simulate_usage},
     {"merge", cmd_merge, "combine the JSON of sharded series runs (--shard K/N) into the campaign of one run", cmd_merge_usage},
+    {"demo", cmd_demo, "run the whole chain on the bundled synthetic data: report, tables and figures", cmd_demo_usage},
 };
 static const size_t ncommands = sizeof commands / sizeof commands[0];
 
