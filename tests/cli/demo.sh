@@ -36,7 +36,8 @@ for f in $figs; do
     if [ "$(head -c 5 "$TMP/demo/figures/$f.pdf" 2>/dev/null)" = "%PDF-" ]; then ok; else bad "$f.pdf is not a PDF"; fi ;;
   esac
 done
-# the recovered slopes of both campaigns within 4 standard errors of the truth (from the report)
+# the recovered slopes of both campaigns within 2 standard errors of the truth (from the report);
+# issue 7 asks for 2 (spectra/README.md says how the campaign's seeds relate to that)
 python3 - "$TMP/demo/report.json" <<'PY' && ok || bad "demo slopes against truth"
 import json, sys
 rep = json.load(open(sys.argv[1]))
@@ -46,7 +47,7 @@ assert len(rows) == 8, rows
 for r in rows:
     z = float(r[5])
     print(r)
-    assert abs(z) < 4, r
+    assert abs(z) < 2, r
 assert len(rep["inputs"]) >= 20 and all(len(i["sha256"]) == 64 for i in rep["inputs"])
 PY
 # a used folder is refused without --force, accepted with it
