@@ -66,6 +66,43 @@ static void print_main_usage(FILE *f)
     fputs(main_usage_tail, f);
 }
 
+/* Write text as roff body text: backslashes escaped, lines that start with '.' or '\'' protected. */
+static void roff_text(FILE *f, const char *text)
+{
+    int bol = 1;
+    for (const char *p = text; *p; p++) {
+        if (bol && (*p == '.' || *p == '\''))
+            fputs("\\&", f);
+        if (*p == '\\')
+            fputs("\\e", f);
+        else
+            fputc(*p, f);
+        bol = *p == '\n';
+    }
+}
+
+/* The manual page, made from the same usage texts as --help (installed as collshift.1). */
+static void print_man(FILE *f)
+{
+    fprintf(f, ".TH COLLSHIFT 1 \"\" \"collshift %s\" \"User Commands\"\n", CS_VERSION_STRING);
+    fputs(".SH NAME\ncollshift \\- collective line shifts and widths of dense emitters\n", f);
+    fputs(".SH SYNOPSIS\n.nf\n", f);
+    roff_text(f, main_usage_head);
+    fputs(".fi\n.SH COMMANDS\n.nf\n", f);
+    for (size_t i = 0; i < ncommands; i++)
+        fprintf(f, "  %-10s %s\n", commands[i].name, commands[i].summary);
+    fputs(".fi\n", f);
+    for (size_t i = 0; i < ncommands; i++) {
+        fprintf(f, ".SS %s\n.nf\n", commands[i].name);
+        for (const char *const *u = commands[i].usage; *u; u++)
+            roff_text(f, *u);
+        fputs(".fi\n", f);
+    }
+    fputs(".SH CONVENTIONS AND EXIT STATUS\n.nf\n", f);
+    roff_text(f, main_usage_tail);
+    fputs(".fi\n.SH SEE ALSO\nREADME.md and DEVELOPERS.md in the source distribution.\n", f);
+}
+
 void cli_errorf(const char *fmt, ...)
 {
     fputs("collshift: ", stderr);
@@ -112,6 +149,10 @@ int main(int argc, char **argv)
     const char *cmd = argv[1];
     if (strcmp(cmd, "--help") == 0 || strcmp(cmd, "-h") == 0) {
         print_main_usage(stdout);
+        return finish_stdout(CLI_EXIT_OK);
+    }
+    if (strcmp(cmd, "--man") == 0) {   /* used by the build to make collshift.1 */
+        print_man(stdout);
         return finish_stdout(CLI_EXIT_OK);
     }
     if (strcmp(cmd, "--version") == 0 || strcmp(cmd, "-V") == 0) {

@@ -9,6 +9,8 @@ extra=()
 expect_code 0 cmake --install "$CS_BUILD_DIR" --prefix "$TMP/prefix"
 [ -x "$TMP/prefix/bin/collshift" ] && ok || bad "binary not installed"
 [ -f "$TMP/prefix/include/collshift/io.h" ] && ok || bad "headers not installed"
+[ -f "$TMP/prefix/share/man/man1/collshift.1" ] && ok || bad "manual page not installed"
+[ -f "$TMP/prefix/share/collshift/spectra/README.md" ] && ok || bad "demo data not installed"
 pc=$(find "$TMP/prefix" -name collshift.pc | head -1)
 [ -n "$pc" ] && ok || bad "collshift.pc not installed"
 export PKG_CONFIG_PATH="$(dirname "$pc")"
