@@ -46,10 +46,11 @@
  * The file is read in 4 MiB chunks into one buffer; lines are found with memchr and handled in
  * place. A partial last line is moved to the front of the buffer before the next read (since a
  * line is at most 1 MiB, there is always room). Fields are found one at a time, and a field in
- * use is NUL-terminated in place and converted by num_fast() - the one place to swap in a
- * faster number parser later. Nothing is allocated per line or per field: values go straight
- * into arrays grown geometrically with realloc and shrunk to size at the end, which become the
- * arrays of the spectrum or record without a copy. Slow work (messages, decimal-comma and
+ * use is NUL-terminated in place and converted by num_fast(): plain decimals by the exact
+ * fast parser of io_number.c (Clinger's fast path, then Eisel-Lemire), anything else by
+ * strtod. Nothing is allocated per line or per field: values go straight into arrays grown
+ * geometrically with realloc and shrunk to size at the end, which become the arrays of the
+ * spectrum or record without a copy. Slow work (messages, decimal-comma and
  * quote handling) happens only when a field fails the fast path.
  * strtod follows LC_NUMERIC: collshift keeps the "C" locale, where the decimal point is '.'.
  */
@@ -195,10 +196,14 @@ static inline int next_field(char d, char **pp, char *le, char **fb, char **fe)
     return 1;
 }
 
-/* The fast path: [b, e) with *e == '\0' is a finite decimal number. Replace this function to
- * change the number parser; the slow path (field_value) explains every refusal. */
+/* The fast path: [b, e) with *e == '\0' is a finite decimal number. Plain decimals are
+ * converted by cs_decimal_to_double (io_number.c, bit-identical to strtod); whatever it leaves
+ * undecided goes to strtod, so what is accepted or refused does not depend on it. The slow path
+ * (field_value) explains every refusal. */
 static inline int num_fast(const char *b, const char *e, double *v)
 {
+    if (cs_decimal_to_double(b, e, v))
+        return 1;
     char *end;
     *v = strtod(b, &end);
     if (end != e || b == e || !isfinite(*v))

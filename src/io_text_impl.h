@@ -95,4 +95,11 @@ CS_IO_INTERNAL int io_text_meta_kind(const txt *c, long *line);
 /* After the last line: check the row count, then make the spectrum or record of c->out. */
 CS_IO_INTERNAL int io_text_finish(txt *c);
 
+/* ---------------------------------------------------------------- io_number.c */
+
+/* [b, e) as a plain decimal number (sign, digits, '.', exponent; at most 19 significant
+ * digits; finite): 1 with *v bit-identical to strtod's ("C" locale, rounding to nearest), or 0
+ * when it does not decide - anything else, for the caller to give to strtod. */
+CS_IO_INTERNAL int cs_decimal_to_double(const char *b, const char *e, double *v);
+
 #endif /* CS_IO_TEXT_IMPL_H */
