@@ -15,48 +15,6 @@
 #define CS_GATEFIT_INTERNAL __attribute__((visibility("hidden")))
 #else
 #define CS_GATEFIT_INTERNAL
-/* One fit: the data, the layout and scales of the solver's internal variables u (see the top of
- * gatefit_solve.c), and counters. */
-typedef struct gf_fit {
-    gf_problem P;
-    double lo, t_g;                      /* LO frequency, time of the gate's first sample */
-    size_t np, nres;                     /* parameters (= internal variables), residuals */
-    size_t first[CS_GATEFIT_MAX_COMP];   /* first internal variable of each component */
-    double f0[CS_GATEFIT_MAX_COMP];      /* starting frequency in the record, Hz */
-    double sf[CS_GATEFIT_MAX_COMP];      /* frequency per unit of u0, Hz */
-    double tau0[CS_GATEFIT_MAX_COMP];    /* burst: starting tau, s */
-    double tp0[CS_GATEFIT_MAX_COMP];     /* burst: starting t_peak - t_g, s */
-    double sref[CS_GATEFIT_MAX_COMP];    /* phase reference of the internal amplitude, s from t_g */
-    double a_ref;                        /* amplitude scale */
-    double s_fit;                        /* residual normalisation (signal units) */
-    size_t nfev, njev;
-    int last_nan;                        /* the last residual evaluation was not finite */
-} gf_fit;
-
-/* Natural parameters from the internal variables u; 0 when an exponential overflows. */
-CS_GATEFIT_INTERNAL int cs_gatefit_impl_theta(const gf_fit *F, const double *u, gf_theta *th);
-
-/* Residuals (model - data)/s_fit into res (nres; may be NULL) and their Jacobian d res/du into J
- * (nres x np; may be NULL) at u. Returns 1 when everything is finite; otherwise res holds a huge
- * penalty and J zeros. */
-CS_GATEFIT_INTERNAL int cs_gatefit_impl_evaluate(gf_fit *F, const double *u, gsl_vector *res,
-                                                 gsl_matrix *J);
-
-/* Run the trust-region solver from u (np values; receives the last point reached). Sets
- * r->status (CONVERGED, NOT_CONVERGED, MODEL_NAN), r->stop and r->niter. Returns CS_OK or
- * CS_ENOMEM. */
-CS_GATEFIT_INTERNAL int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u,
-                                              cs_gatefit_result *r, cs_error *err);
-
-/* The reported parameters (layout of cs_gatefit_result.value) of th. */
-CS_GATEFIT_INTERNAL void cs_gatefit_impl_values(const gf_fit *F, const gf_theta *th, double *val);
-
-/* Covariance of the reported parameters at u into r->cov (NaN rows for undetermined ones;
- * *singular set when there are any); factor = sigma^2 / s_fit^2. CS_OK or CS_ENOMEM. */
-CS_GATEFIT_INTERNAL int cs_gatefit_impl_covariance(gf_fit *F, const double *u, const gf_theta *th,
-                                                   double factor, cs_gatefit_result *r, int *singular,
-                                                   cs_error *err);
-
 #endif
 
 /* The natural (physical, record-frame) parameters of the model:

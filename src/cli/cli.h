@@ -4,6 +4,7 @@
 #define CS_CLI_H
 
 #include <getopt.h>
+#include <jansson.h>
 #include <stdio.h>
 
 #include <collshift/error.h>
@@ -96,6 +97,20 @@ int cli_merge_options(const struct option *own, struct option *out, size_t cap);
 /* Handle a shared load option (code >= CLI_LOAD_OPT_BASE). Returns 0 on success, or prints a usage
  * message and returns CLI_EXIT_USAGE. */
 int cli_load_option(int code, const char *arg, cs_load_options *o);
+
+/* A growing text buffer for tables and reports (p is NULL until the first write; free(p)). */
+typedef struct cli_buf {
+    char *p;
+    size_t len, cap;
+} cli_buf;
+/* Append formatted text; on allocation failure the text is dropped (p keeps what it had). */
+void cli_bprintf(cli_buf *b, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 2, 3)))
+#endif
+    ;
+/* A JSON number, or null for NaN/Inf (numbers that could not be computed are never numbers). */
+json_t *cli_jnum(double v);
 
 /* Write text to PATH atomically (temporary file in the same folder, then rename), or to stdout
  * when path is "-". Returns 0, or prints a message and returns CLI_EXIT_DATA. */

@@ -4,6 +4,8 @@
 #include <collshift/report.h>
 
 #include <errno.h>
+#include <math.h>
+#include <stdarg.h>
 #include <limits.h>
 #include <stdlib.h>
 #include <string.h>
@@ -195,4 +197,31 @@ int cli_write_text(const char *path, const char *text)
     if (cs_write_atomic(path, text, len, &err) != CS_OK)
         return cli_report(&err);
     return 0;
+}
+
+void cli_bprintf(cli_buf *b, const char *fmt, ...)
+{
+    for (;;) {
+        va_list ap;
+        va_start(ap, fmt);
+        int k = vsnprintf(b->p ? b->p + b->len : NULL, b->p ? b->cap - b->len : 0, fmt, ap);
+        va_end(ap);
+        if (k < 0)
+            return;
+        if (b->p && b->len + (size_t)k < b->cap) {
+            b->len += (size_t)k;
+            return;
+        }
+        size_t cap = 2 * b->cap + (size_t)k + 4096;
+        char *np = realloc(b->p, cap);
+        if (!np)
+            return;
+        b->p = np;
+        b->cap = cap;
+    }
+}
+
+json_t *cli_jnum(double v)
+{
+    return isfinite(v) ? json_real(v) : json_null();
 }

@@ -380,11 +380,6 @@ static void csv_num(table *t, double v)
         tprintf(t, ",");
 }
 
-static json_t *jnum(double v)
-{
-    return isfinite(v) ? json_real(v) : json_null();
-}
-
 /* The value of component parameter `name` (short), or NaN. */
 static double comp_param(const cs_model *m, const cs_fit_result *r, size_t c, const char *name, double *err)
 {
@@ -422,12 +417,12 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
     json_object_set_new(o, "model", json_string(m->text));
     json_object_set_new(o, "mode", json_string(trans ? "transmission" : "sum"));
     json_object_set_new(o, "n", json_integer((json_int_t)r->n));
-    json_object_set_new(o, "chi2", jnum(r->chi2));
+    json_object_set_new(o, "chi2", cli_jnum(r->chi2));
     json_object_set_new(o, "dof", json_integer((json_int_t)r->dof));
-    json_object_set_new(o, "redchi2", jnum(r->redchi2));
-    json_object_set_new(o, "aic", jnum(r->aic));
-    json_object_set_new(o, "bic", jnum(r->bic));
-    json_object_set_new(o, "rms", jnum(r->rms));
+    json_object_set_new(o, "redchi2", cli_jnum(r->redchi2));
+    json_object_set_new(o, "aic", cli_jnum(r->aic));
+    json_object_set_new(o, "bic", cli_jnum(r->bic));
+    json_object_set_new(o, "rms", cli_jnum(r->rms));
     json_object_set_new(o, "iterations", json_integer((json_int_t)r->niter));
     json_object_set_new(o, "errors_scaled", json_boolean(r->errors_scaled));
     if (have_ref)
@@ -454,8 +449,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
             char fname[48], ename[56];
             field_name(p, fname, sizeof fname);
             snprintf(ename, sizeof ename, "%s_err", fname);
-            json_object_set_new(jc, fname, jnum(v));
-            json_object_set_new(jc, ename, jnum(e));
+            json_object_set_new(jc, fname, cli_jnum(v));
+            json_object_set_new(jc, ename, cli_jnum(e));
             if (!fo->quiet) {
                 const char *flag = p->fixed ? "  (fixed)" : p->tie >= 0 ? "  (tied)" :
                                    r->at_bound[mc->first + k] == 1 ? "  (at lower bound)" :
@@ -473,8 +468,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
                 continue;
             char ename[56];
             snprintf(ename, sizeof ename, "%s_err", derived_fields[q].field);
-            json_object_set_new(jc, derived_fields[q].field, jnum(d->value[qq]));
-            json_object_set_new(jc, ename, jnum(d->err[qq]));
+            json_object_set_new(jc, derived_fields[q].field, cli_jnum(d->value[qq]));
+            json_object_set_new(jc, ename, cli_jnum(d->err[qq]));
         }
         /* the reported FWHM: the width parameter, or for a Voigt the exact total FWHM */
         double fwhm, fwhm_err;
@@ -482,8 +477,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         if (!isfinite(fwhm) && d->status[CS_PROFILE_FWHM] == CS_OK) {
             fwhm = d->value[CS_PROFILE_FWHM];
             fwhm_err = d->err[CS_PROFILE_FWHM];
-            json_object_set_new(jc, "fwhm_hz", jnum(fwhm));
-            json_object_set_new(jc, "fwhm_hz_err", jnum(fwhm_err));
+            json_object_set_new(jc, "fwhm_hz", cli_jnum(fwhm));
+            json_object_set_new(jc, "fwhm_hz_err", cli_jnum(fwhm_err));
             if (!fo->quiet)
                 printf("      %-8s %s  (total, exact; Olivero-Longbothum %s)\n", "fwhm",
                        cs_format_value_err(fwhm, fwhm_err, CS_DIM_FREQUENCY, b1, sizeof b1),
@@ -495,8 +490,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         if (have_ref) {
             shift = center - ref_hz;
             shift_err = cerr;
-            json_object_set_new(jc, "shift_hz", jnum(shift));
-            json_object_set_new(jc, "shift_hz_err", jnum(shift_err));
+            json_object_set_new(jc, "shift_hz", cli_jnum(shift));
+            json_object_set_new(jc, "shift_hz_err", cli_jnum(shift_err));
             if (!fo->quiet)
                 printf("      %-8s %s  (centre minus reference)\n", "shift",
                        cs_format_value_err(shift, shift_err, CS_DIM_FREQUENCY, b1, sizeof b1));
@@ -539,8 +534,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
                cs_quantity_format(r->x_ref, CS_DIM_FREQUENCY, 12, b2, sizeof b2));
     for (size_t k = m->base_first; k < m->nparams; k++) {
         json_array_append_new(names, json_string(short_name(m->par[k].name)));
-        json_array_append_new(vals, jnum(r->value[k]));
-        json_array_append_new(errs, jnum(r->err[k]));
+        json_array_append_new(vals, cli_jnum(r->value[k]));
+        json_array_append_new(errs, cli_jnum(r->err[k]));
         if (!fo->quiet)
             printf("      %-8s %s%s\n", short_name(m->par[k].name),
                    cs_format_value_err(r->value[k], r->err[k], CS_DIM_DIMENSIONLESS, b1, sizeof b1),
@@ -557,8 +552,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         const cs_param *p = &m->par[k];
         json_t *jp = json_object();
         json_object_set_new(jp, "name", json_string(p->name));
-        json_object_set_new(jp, "value", jnum(r->value[k]));
-        json_object_set_new(jp, "err", jnum(r->err[k]));
+        json_object_set_new(jp, "value", cli_jnum(r->value[k]));
+        json_object_set_new(jp, "err", cli_jnum(r->err[k]));
         json_object_set_new(jp, "unit", json_string(p->kind == CS_PARAM_FREQUENCY ? "Hz" : p->kind == CS_PARAM_AREA ? "area" : "1"));
         json_object_set_new(jp, "fixed", json_boolean(p->fixed));
         json_object_set_new(jp, "tied_to", p->tie >= 0 ? json_string(m->par[p->tie].name) : json_null());
@@ -568,13 +563,13 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         if (isfinite(p->hi))
             json_object_set_new(jp, "hi", json_real(p->hi));
         if (r->boot_err)
-            json_object_set_new(jp, "err_bootstrap", jnum(r->boot_err[k]));
+            json_object_set_new(jp, "err_bootstrap", cli_jnum(r->boot_err[k]));
         if (r->mc_err)
-            json_object_set_new(jp, "err_montecarlo", jnum(r->mc_err[k]));
+            json_object_set_new(jp, "err_montecarlo", cli_jnum(r->mc_err[k]));
         json_array_append_new(params, jp);
         json_t *row = json_array();
         for (size_t j = 0; j < m->nparams; j++)
-            json_array_append_new(row, jnum(r->corr[k * m->nparams + j]));
+            json_array_append_new(row, cli_jnum(r->corr[k * m->nparams + j]));
         json_array_append_new(corr, row);
     }
     json_object_set_new(o, "parameters", params);
@@ -784,19 +779,19 @@ int cmd_fit(int argc, char **argv)
                 json_object_set_new(jc, "model", json_string(text));
                 json_object_set_new(jc, "status", json_string(cs_fit_status_name(rr->status)));
                 json_object_set_new(jc, "nfree", json_integer((json_int_t)rr->nfree));
-                json_object_set_new(jc, "chi2", jnum(rr->chi2));
+                json_object_set_new(jc, "chi2", cli_jnum(rr->chi2));
                 json_object_set_new(jc, "dof", json_integer((json_int_t)rr->dof));
-                json_object_set_new(jc, "aic", jnum(rr->aic));
-                json_object_set_new(jc, "bic", jnum(rr->bic));
+                json_object_set_new(jc, "aic", cli_jnum(rr->aic));
+                json_object_set_new(jc, "bic", cli_jnum(rr->bic));
                 if (mi > 0 && first) {
                     double F = NAN, pv = NAN;
                     const cs_fit_result *simple = rr->nfree < first->nfree ? rr : first;
                     const cs_fit_result *full = rr->nfree < first->nfree ? first : rr;
                     if (cs_fit_ftest(simple, full, &F, &pv) == CS_OK) {
-                        json_object_set_new(jc, "f_statistic", jnum(F));
-                        json_object_set_new(jc, "f_p_value", jnum(pv));
+                        json_object_set_new(jc, "f_statistic", cli_jnum(F));
+                        json_object_set_new(jc, "f_p_value", cli_jnum(pv));
                     }
-                    json_object_set_new(jc, "delta_bic", jnum(rr->bic - first->bic));
+                    json_object_set_new(jc, "delta_bic", cli_jnum(rr->bic - first->bic));
                     if (!fo.quiet)
                         printf("  compare %s: chi2/dof = %.4g, BIC = %.6g (%+.3g vs %s)\n", text, rr->redchi2, rr->bic,
                                rr->bic - first->bic, fo.model);

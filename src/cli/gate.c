@@ -197,25 +197,20 @@ static int parse_args(int argc, char **argv, gate_opts *go, cs_load_options *lo)
     return 0;
 }
 
-static json_t *jnum(double v)
-{
-    return isfinite(v) ? json_real(v) : json_null();
-}
-
 static json_t *burst_json(const cs_burst *b)
 {
     json_t *o = json_object();
     json_object_set_new(o, "found", json_boolean(b->status == CS_BURST_FOUND));
-    json_object_set_new(o, "snr", jnum(b->snr));
-    json_object_set_new(o, "floor", jnum(b->floor));
+    json_object_set_new(o, "snr", cli_jnum(b->snr));
+    json_object_set_new(o, "floor", cli_jnum(b->floor));
     if (b->status == CS_BURST_FOUND) {
-        json_object_set_new(o, "peak_time_s", jnum(b->peak_time_s));
-        json_object_set_new(o, "peak", jnum(b->peak));
-        json_object_set_new(o, "fwhm_s", jnum(b->fwhm_s));
-        json_object_set_new(o, "onset_s", jnum(b->onset_s));
-        json_object_set_new(o, "end_s", jnum(b->end_s));
-        json_object_set_new(o, "tail_start_s", jnum(b->tail_start_s));
-        json_object_set_new(o, "fade_s", jnum(b->fade_s));
+        json_object_set_new(o, "peak_time_s", cli_jnum(b->peak_time_s));
+        json_object_set_new(o, "peak", cli_jnum(b->peak));
+        json_object_set_new(o, "fwhm_s", cli_jnum(b->fwhm_s));
+        json_object_set_new(o, "onset_s", cli_jnum(b->onset_s));
+        json_object_set_new(o, "end_s", cli_jnum(b->end_s));
+        json_object_set_new(o, "tail_start_s", cli_jnum(b->tail_start_s));
+        json_object_set_new(o, "fade_s", cli_jnum(b->fade_s));
         json_object_set_new(o, "onset_clipped", json_boolean(b->onset_clipped));
         json_object_set_new(o, "end_clipped", json_boolean(b->end_clipped));
     }
@@ -226,53 +221,21 @@ static json_t *burst_fit_json(const cs_burst_fit *f)
 {
     json_t *o = json_object();
     json_object_set_new(o, "status", json_string(f->status == CS_OK ? "ok" : cs_strerror(f->status)));
-    json_object_set_new(o, "t_from_s", jnum(f->t_from_s));
-    json_object_set_new(o, "t_to_s", jnum(f->t_to_s));
+    json_object_set_new(o, "t_from_s", cli_jnum(f->t_from_s));
+    json_object_set_new(o, "t_to_s", cli_jnum(f->t_to_s));
     if (f->law == CS_BURST_LAW_EXP) {
-        json_object_set_new(o, "rate_per_s", jnum(f->rate_per_s));
-        json_object_set_new(o, "rate_per_s_err", jnum(f->rate_err_per_s));
+        json_object_set_new(o, "rate_per_s", cli_jnum(f->rate_per_s));
+        json_object_set_new(o, "rate_per_s_err", cli_jnum(f->rate_err_per_s));
     } else {
-        json_object_set_new(o, "t_origin_s", jnum(f->t_origin_s));
-        json_object_set_new(o, "exponent", jnum(f->exponent));
-        json_object_set_new(o, "exponent_err", jnum(f->exponent_err));
+        json_object_set_new(o, "t_origin_s", cli_jnum(f->t_origin_s));
+        json_object_set_new(o, "exponent", cli_jnum(f->exponent));
+        json_object_set_new(o, "exponent_err", cli_jnum(f->exponent_err));
     }
-    json_object_set_new(o, "chi2", jnum(f->chi2));
+    json_object_set_new(o, "chi2", cli_jnum(f->chi2));
     json_object_set_new(o, "dof", json_integer((json_int_t)f->dof));
     return o;
 }
 
-/* Grows a text buffer. */
-typedef struct sbuf {
-    char *p;
-    size_t len, cap;
-} sbuf;
-
-static void sb_printf(sbuf *b, const char *fmt, ...)
-#if defined(__GNUC__)
-    __attribute__((format(printf, 2, 3)))
-#endif
-    ;
-static void sb_printf(sbuf *b, const char *fmt, ...)
-{
-    for (;;) {
-        va_list ap;
-        va_start(ap, fmt);
-        int k = vsnprintf(b->p ? b->p + b->len : NULL, b->p ? b->cap - b->len : 0, fmt, ap);
-        va_end(ap);
-        if (k < 0)
-            return;
-        if (b->p && b->len + (size_t)k < b->cap) {
-            b->len += (size_t)k;
-            return;
-        }
-        size_t cap = 2 * b->cap + (size_t)k + 4096;
-        char *np = realloc(b->p, cap);
-        if (!np)
-            return;
-        b->p = np;
-        b->cap = cap;
-    }
-}
 
 /* PREFIX_GATE.csv, or PREFIX_STEM_GATE.csv with several files. */
 static void out_name(char *buf, size_t n, const char *prefix, const char *path, int several, const char *gate)
@@ -293,21 +256,21 @@ static void out_name(char *buf, size_t n, const char *prefix, const char *path, 
 
 static int write_gated_csv(const char *path, const cs_gated_spectrum *gs, const char *source)
 {
-    sbuf b = {0};
+    cli_buf b = {0};
     char wbuf[CS_WINDOW_SPEC_MAX];
-    sb_printf(&b, "# source = %s\n# gate = %s\n# gate_start = %.17g s\n# gate_length = %.17g s\n", source,
+    cli_bprintf(&b, "# source = %s\n# gate = %s\n# gate_start = %.17g s\n# gate_length = %.17g s\n", source,
               gs->gate.name, gs->gate.start_s, gs->gate.length_s);
-    sb_printf(&b, "# window = %s\n# pad = %zu\n# nfft = %zu\n# enbw = %.17g Hz\n# lo = %.17g Hz\n# nshots = %zu\n",
+    cli_bprintf(&b, "# window = %s\n# pad = %zu\n# nfft = %zu\n# enbw = %.17g Hz\n# lo = %.17g Hz\n# nshots = %zu\n",
               cs_window_format(&gs->gate.window, wbuf, sizeof wbuf), gs->pad, gs->nfft, gs->enbw_hz, gs->lo_hz,
               gs->nshots);
-    sb_printf(&b, "# psd_convention = %s\n", gs->one_sided ? "one-sided" : "two-sided");
+    cli_bprintf(&b, "# psd_convention = %s\n", gs->one_sided ? "one-sided" : "two-sided");
     const cs_spectrum *s = gs->psd;
-    sb_printf(&b, s->sigma ? "frequency_hz,psd,psd_err\n" : "frequency_hz,psd\n");
+    cli_bprintf(&b, s->sigma ? "frequency_hz,psd,psd_err\n" : "frequency_hz,psd\n");
     for (size_t i = 0; i < s->n; i++) {
         if (s->sigma)
-            sb_printf(&b, "%.17g,%.10g,%.10g\n", s->freq_hz[i], s->y[i], s->sigma[i]);
+            cli_bprintf(&b, "%.17g,%.10g,%.10g\n", s->freq_hz[i], s->y[i], s->sigma[i]);
         else
-            sb_printf(&b, "%.17g,%.10g\n", s->freq_hz[i], s->y[i]);
+            cli_bprintf(&b, "%.17g,%.10g\n", s->freq_hz[i], s->y[i]);
     }
     int rc = b.p ? cli_write_text(path, b.p) : CLI_EXIT_DATA;
     free(b.p);
@@ -340,7 +303,7 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
         *worst = CLI_EXIT_ANALYSIS;
     json_object_set_new(o, "status", json_string(r->status == CS_FIT_CONVERGED ? "converged" : cs_fit_status_name(r->status)));
     json_object_set_new(o, "model", json_string(list));
-    json_object_set_new(o, "redchi2", jnum(r->redchi2));
+    json_object_set_new(o, "redchi2", cli_jnum(r->redchi2));
     json_object_set_new(o, "errors_scaled", json_boolean(r->errors_scaled));
     json_t *comps = json_array();
     char b1[96], b2[96];
@@ -351,13 +314,13 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
         double center = r->value[mc->first], center_err = r->err[mc->first];
         const cs_profile_derived *d = &r->derived[c];
         double fw = d->value[CS_PROFILE_FWHM], fwe = d->err[CS_PROFILE_FWHM];
-        json_object_set_new(jc, "center_hz", jnum(center));
-        json_object_set_new(jc, "center_hz_err", jnum(center_err));
-        json_object_set_new(jc, "fwhm_hz", jnum(fw));
-        json_object_set_new(jc, "fwhm_hz_err", jnum(fwe));
+        json_object_set_new(jc, "center_hz", cli_jnum(center));
+        json_object_set_new(jc, "center_hz_err", cli_jnum(center_err));
+        json_object_set_new(jc, "fwhm_hz", cli_jnum(fw));
+        json_object_set_new(jc, "fwhm_hz_err", cli_jnum(fwe));
         size_t ai = mc->first + mc->type->nparams - 1;
-        json_object_set_new(jc, "area", jnum(r->value[ai]));
-        json_object_set_new(jc, "area_err", jnum(r->err[ai]));
+        json_object_set_new(jc, "area", cli_jnum(r->value[ai]));
+        json_object_set_new(jc, "area_err", cli_jnum(r->err[ai]));
         json_array_append_new(comps, jc);
         if (!quiet)
             printf("      fit %zu %-8s center %s, fwhm %s\n", c + 1, mc->type->name,
@@ -397,8 +360,8 @@ static json_t *gatefit_gate(cs_gate_workspace *ws, const cs_record *rec, const c
     if (rc != CS_OK && *worst == CLI_EXIT_OK)
         *worst = CLI_EXIT_ANALYSIS;
     json_object_set_new(jo, "status", json_string(r->status == CS_FIT_CONVERGED ? "converged" : cs_fit_status_name(r->status)));
-    json_object_set_new(jo, "redchi2", jnum(r->redchi2));
-    json_object_set_new(jo, "noise_sd", jnum(r->noise_sd));
+    json_object_set_new(jo, "redchi2", cli_jnum(r->redchi2));
+    json_object_set_new(jo, "noise_sd", cli_jnum(r->noise_sd));
     json_object_set_new(jo, "errors_scaled", json_boolean(r->errors_scaled));
     json_t *comps = json_array();
     char b1[96], b2[96];
@@ -406,23 +369,23 @@ static json_t *gatefit_gate(cs_gate_workspace *ws, const cs_record *rec, const c
         const cs_gatefit_component *k = &r->comp[c];
         json_t *jc = json_object();
         json_object_set_new(jc, "profile", json_string(cs_gatefit_kind_name(k->kind)));
-        json_object_set_new(jc, "center_hz", jnum(k->center_hz));
-        json_object_set_new(jc, "center_hz_err", jnum(k->center_hz_err));
-        json_object_set_new(jc, "fwhm_hz", jnum(k->fwhm_hz));
-        json_object_set_new(jc, "fwhm_hz_err", jnum(k->fwhm_hz_err));
+        json_object_set_new(jc, "center_hz", cli_jnum(k->center_hz));
+        json_object_set_new(jc, "center_hz_err", cli_jnum(k->center_hz_err));
+        json_object_set_new(jc, "fwhm_hz", cli_jnum(k->fwhm_hz));
+        json_object_set_new(jc, "fwhm_hz_err", cli_jnum(k->fwhm_hz_err));
         if (k->kind == CS_GATEFIT_DECAY) {
-            json_object_set_new(jc, "gamma_per_s", jnum(k->gamma_per_s));
-            json_object_set_new(jc, "gamma_per_s_err", jnum(k->gamma_per_s_err));
+            json_object_set_new(jc, "gamma_per_s", cli_jnum(k->gamma_per_s));
+            json_object_set_new(jc, "gamma_per_s_err", cli_jnum(k->gamma_per_s_err));
         } else {
-            json_object_set_new(jc, "tau_s", jnum(k->tau_s));
-            json_object_set_new(jc, "tau_s_err", jnum(k->tau_s_err));
-            json_object_set_new(jc, "t_peak_s", jnum(k->t_peak_s));
-            json_object_set_new(jc, "t_peak_s_err", jnum(k->t_peak_s_err));
+            json_object_set_new(jc, "tau_s", cli_jnum(k->tau_s));
+            json_object_set_new(jc, "tau_s_err", cli_jnum(k->tau_s_err));
+            json_object_set_new(jc, "t_peak_s", cli_jnum(k->t_peak_s));
+            json_object_set_new(jc, "t_peak_s_err", cli_jnum(k->t_peak_s_err));
         }
-        json_object_set_new(jc, "amplitude", jnum(k->amplitude));
-        json_object_set_new(jc, "amplitude_err", jnum(k->amplitude_err));
-        json_object_set_new(jc, "phase_rad", jnum(k->phase_rad));
-        json_object_set_new(jc, "phase_rad_err", jnum(k->phase_rad_err));
+        json_object_set_new(jc, "amplitude", cli_jnum(k->amplitude));
+        json_object_set_new(jc, "amplitude_err", cli_jnum(k->amplitude_err));
+        json_object_set_new(jc, "phase_rad", cli_jnum(k->phase_rad));
+        json_object_set_new(jc, "phase_rad_err", cli_jnum(k->phase_rad_err));
         json_array_append_new(comps, jc);
         if (!quiet)
             printf("      fit %zu %-6s center %s, fwhm %s  (gate-aware)\n", c + 1, cs_gatefit_kind_name(k->kind),
@@ -477,13 +440,13 @@ static json_t *pencil_gate(const cs_record *rec, const cs_gate *g, const cs_burs
             if (!(c->gamma_per_s > 0))
                 continue;  /* a growing exponential is part of a burst's shape, not a line */
             json_t *o = json_object();
-            json_object_set_new(o, "center_hz", jnum(c->freq_hz + lo_hz));
-            json_object_set_new(o, "center_hz_err", jnum(c->freq_hz_err));
-            json_object_set_new(o, "fwhm_hz", jnum(c->fwhm_hz));
-            json_object_set_new(o, "fwhm_hz_err", jnum(c->fwhm_hz_err));
-            json_object_set_new(o, "gamma_per_s", jnum(c->gamma_per_s));
-            json_object_set_new(o, "gamma_per_s_err", jnum(c->gamma_per_s_err));
-            json_object_set_new(o, "amplitude", jnum(c->amplitude));
+            json_object_set_new(o, "center_hz", cli_jnum(c->freq_hz + lo_hz));
+            json_object_set_new(o, "center_hz_err", cli_jnum(c->freq_hz_err));
+            json_object_set_new(o, "fwhm_hz", cli_jnum(c->fwhm_hz));
+            json_object_set_new(o, "fwhm_hz_err", cli_jnum(c->fwhm_hz_err));
+            json_object_set_new(o, "gamma_per_s", cli_jnum(c->gamma_per_s));
+            json_object_set_new(o, "gamma_per_s_err", cli_jnum(c->gamma_per_s_err));
+            json_object_set_new(o, "amplitude", cli_jnum(c->amplitude));
             json_array_append_new(a, o);
             if (!quiet)
                 printf("      pencil %zu: center %s, fwhm %s\n", shown + 1,
@@ -603,18 +566,18 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
     }
     if (decay) {
         json_t *jd = json_object();
-        json_object_set_new(jd, "exp_start_s", jnum(decay->exp_start_s));
-        json_object_set_new(jd, "exp_end_s", jnum(decay->exp_end_s));
-        json_object_set_new(jd, "nonexp_start_s", jnum(decay->nonexp_start_s));
-        json_object_set_new(jd, "nonexp_end_s", jnum(decay->nonexp_end_s));
+        json_object_set_new(jd, "exp_start_s", cli_jnum(decay->exp_start_s));
+        json_object_set_new(jd, "exp_end_s", cli_jnum(decay->exp_end_s));
+        json_object_set_new(jd, "nonexp_start_s", cli_jnum(decay->nonexp_start_s));
+        json_object_set_new(jd, "nonexp_end_s", cli_jnum(decay->nonexp_end_s));
         json_object_set_new(jd, "exp_fit", burst_fit_json(&decay->exp_fit));
         json_object_set_new(jd, "power_fit", burst_fit_json(&decay->power_fit));
         json_t *lr = json_array();
         for (size_t i = 0; i < decay->n; i++) {
             json_t *p = json_array();
-            json_array_append_new(p, jnum(decay->t_s[i]));
-            json_array_append_new(p, jnum(decay->rate_per_s[i]));
-            json_array_append_new(p, jnum(decay->rate_err_per_s[i]));
+            json_array_append_new(p, cli_jnum(decay->t_s[i]));
+            json_array_append_new(p, cli_jnum(decay->rate_per_s[i]));
+            json_array_append_new(p, cli_jnum(decay->rate_err_per_s[i]));
             json_array_append_new(lr, p);
         }
         json_object_set_new(jd, "local_rate", lr);

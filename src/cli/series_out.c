@@ -82,11 +82,6 @@ static void sb_text(sbuf *b, const char *t)
     sb_printf(b, "\"");
 }
 
-static json_t *jnum(double v)
-{
-    return isfinite(v) ? json_real(v) : json_null();
-}
-
 typedef struct order_item {
     double d;
     long line;
@@ -109,14 +104,14 @@ static json_t *line_json(const cs_series_line *l)
     if (!l->ok)
         return json_null();
     json_t *o = json_object();
-    json_object_set_new(o, "center_hz", jnum(l->center_hz));
-    json_object_set_new(o, "center_hz_err", jnum(l->center_hz_err));
-    json_object_set_new(o, "shift_hz", jnum(l->shift_hz));
-    json_object_set_new(o, "shift_hz_err", jnum(l->shift_hz_err));
-    json_object_set_new(o, "fwhm_hz", jnum(l->fwhm_hz));
-    json_object_set_new(o, "fwhm_hz_err", jnum(l->fwhm_hz_err));
-    json_object_set_new(o, "area", jnum(l->area));
-    json_object_set_new(o, "area_err", jnum(l->area_err));
+    json_object_set_new(o, "center_hz", cli_jnum(l->center_hz));
+    json_object_set_new(o, "center_hz_err", cli_jnum(l->center_hz_err));
+    json_object_set_new(o, "shift_hz", cli_jnum(l->shift_hz));
+    json_object_set_new(o, "shift_hz_err", cli_jnum(l->shift_hz_err));
+    json_object_set_new(o, "fwhm_hz", cli_jnum(l->fwhm_hz));
+    json_object_set_new(o, "fwhm_hz_err", cli_jnum(l->fwhm_hz_err));
+    json_object_set_new(o, "area", cli_jnum(l->area));
+    json_object_set_new(o, "area_err", cli_jnum(l->area_err));
     return o;
 }
 
@@ -131,12 +126,12 @@ static json_t *entry_json(const cs_series_entry *e)
     json_object_set_new(o, "kind", json_string(e->status == CS_SERIES_FAILED && e->kind == CS_KIND_AUTO
                                                    ? "unknown" : cs_kind_name(e->kind)));
     json_object_set_new(o, "shots", json_integer((json_int_t)e->nshots));
-    json_object_set_new(o, "density_cm3", jnum(e->density_used_m3 * 1e-6));
-    json_object_set_new(o, "density_m3", jnum(e->density_used_m3));   /* exact, for merge */
+    json_object_set_new(o, "density_cm3", cli_jnum(e->density_used_m3 * 1e-6));
+    json_object_set_new(o, "density_m3", cli_jnum(e->density_used_m3));   /* exact, for merge */
     json_object_set_new(o, "density_source", json_string(cs_series_density_source_name(e->density_source)));
-    json_object_set_new(o, "temperature_k", jnum(e->temperature_K));
-    json_object_set_new(o, "thickness_m", jnum(e->thickness_m));
-    json_object_set_new(o, "reference_hz", jnum(e->ref_used_hz));
+    json_object_set_new(o, "temperature_k", cli_jnum(e->temperature_K));
+    json_object_set_new(o, "thickness_m", cli_jnum(e->thickness_m));
+    json_object_set_new(o, "reference_hz", cli_jnum(e->ref_used_hz));
     if (e->era >= 0)
         json_object_set_new(o, "era", json_string(cs_split_era_name((cs_split_era)e->era)));
     for (int k = 0; k < CS_SPLIT_NERA; k++)
@@ -153,13 +148,13 @@ static json_t *regression_json(const cs_series_regression *r)
                                             : r->relative ? "shift_hz" : "center_hz"));
     json_object_set_new(o, "status", json_string(r->status == CS_OK ? "ok" : "too few points"));
     json_object_set_new(o, "through_origin", json_boolean(r->fit.through_origin));
-    json_object_set_new(o, "slope_hz_cm3", jnum(r->fit.slope));
-    json_object_set_new(o, "slope_hz_cm3_err", jnum(r->fit.slope_err));
-    json_object_set_new(o, "intercept_hz", jnum(r->fit.intercept));
-    json_object_set_new(o, "intercept_hz_err", jnum(r->fit.intercept_err));
-    json_object_set_new(o, "chi2", jnum(r->fit.chi2));
+    json_object_set_new(o, "slope_hz_cm3", cli_jnum(r->fit.slope));
+    json_object_set_new(o, "slope_hz_cm3_err", cli_jnum(r->fit.slope_err));
+    json_object_set_new(o, "intercept_hz", cli_jnum(r->fit.intercept));
+    json_object_set_new(o, "intercept_hz_err", cli_jnum(r->fit.intercept_err));
+    json_object_set_new(o, "chi2", cli_jnum(r->fit.chi2));
     json_object_set_new(o, "dof", json_integer((json_int_t)r->fit.dof));
-    json_object_set_new(o, "chi2_dof", jnum(r->fit.redchi2));
+    json_object_set_new(o, "chi2_dof", cli_jnum(r->fit.redchi2));
     json_object_set_new(o, "n", json_integer((json_int_t)r->fit.n));
     json_object_set_new(o, "errors_inflated", json_boolean(r->fit.inflated));
     return o;
@@ -174,14 +169,14 @@ static json_t *theory_json(const cs_theory_estimates *est, const cs_series_compa
     json_object_set_new(jl, "source", json_string(est->line.source));
     json_object_set_new(o, "line", jl);
     json_object_set_new(o, "conventions", json_string(CS_THEORY_CONVENTIONS));
-    json_object_set_new(o, "thickness_m", jnum(est->in.thickness_m));
+    json_object_set_new(o, "thickness_m", cli_jnum(est->in.thickness_m));
     json_t *je = json_object();
     static const cs_theory_quantity used[] = {CS_TH_LL_COEF, CS_TH_SLAB_COEF, CS_TH_SELF_COEF};
     for (size_t i = 0; i < sizeof used / sizeof used[0]; i++) {
         const cs_estimate *e = &est->e[used[i]];
         json_t *x = json_object();
         json_object_set_new(x, "label", json_string(e->label));
-        json_object_set_new(x, "value", jnum(e->value));
+        json_object_set_new(x, "value", cli_jnum(e->value));
         json_object_set_new(x, "unit", json_string(e->unit));
         json_object_set_new(x, "status", json_string(cs_estimate_status_name(e->status)));
         json_object_set_new(x, "formula", json_string(e->formula));
@@ -196,11 +191,11 @@ static json_t *theory_json(const cs_theory_estimates *est, const cs_series_compa
         json_object_set_new(x, "era", json_string(cs_split_era_name(cmp[i].era)));
         json_object_set_new(x, "quantity", json_string(cs_series_quantity_name(cmp[i].quantity)));
         json_object_set_new(x, "estimate", json_string(cmp[i].name));
-        json_object_set_new(x, "theory_hz_cm3", jnum(cmp[i].theory_hz_cm3));
-        json_object_set_new(x, "slope_hz_cm3", jnum(cmp[i].measured_hz_cm3));
-        json_object_set_new(x, "slope_hz_cm3_err", jnum(cmp[i].measured_hz_cm3_err));
-        json_object_set_new(x, "ratio", jnum(cmp[i].ratio));
-        json_object_set_new(x, "nsigma", jnum(cmp[i].nsigma));
+        json_object_set_new(x, "theory_hz_cm3", cli_jnum(cmp[i].theory_hz_cm3));
+        json_object_set_new(x, "slope_hz_cm3", cli_jnum(cmp[i].measured_hz_cm3));
+        json_object_set_new(x, "slope_hz_cm3_err", cli_jnum(cmp[i].measured_hz_cm3_err));
+        json_object_set_new(x, "ratio", cli_jnum(cmp[i].ratio));
+        json_object_set_new(x, "nsigma", cli_jnum(cmp[i].nsigma));
         json_array_append_new(jc, x);
     }
     json_object_set_new(o, "comparisons", jc);
@@ -344,7 +339,7 @@ static json_t *run_json(const cs_series *s, const series_opts *so)
     if (so->merged)
         json_object_set_new(o, "merged_shards", json_integer((json_int_t)so->merged));
     json_object_set_new(o, "line", so->line ? json_string(so->line->name) : json_null());
-    json_object_set_new(o, "thickness_m", jnum(so->thickness_m));
+    json_object_set_new(o, "thickness_m", cli_jnum(so->thickness_m));
     json_object_set_new(o, "through_origin", json_boolean(so->flags & CS_SERIES_FIT_ORIGIN));
     json_object_set_new(o, "inflate", json_boolean(so->flags & CS_SERIES_FIT_INFLATE));
     return o;

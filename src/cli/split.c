@@ -302,64 +302,28 @@ static int parse_args(int argc, char **argv, split_opts *so, cs_load_options *lo
 
 /* ---------------------------------------------------------------- text buffers */
 
-typedef struct sbuf {
-    char *p;
-    size_t len, cap;
-} sbuf;
 
-static void sb_printf(sbuf *b, const char *fmt, ...)
-#if defined(__GNUC__)
-    __attribute__((format(printf, 2, 3)))
-#endif
-    ;
-static void sb_printf(sbuf *b, const char *fmt, ...)
-{
-    for (;;) {
-        va_list ap;
-        va_start(ap, fmt);
-        int k = vsnprintf(b->p ? b->p + b->len : NULL, b->p ? b->cap - b->len : 0, fmt, ap);
-        va_end(ap);
-        if (k < 0)
-            return;
-        if (b->p && b->len + (size_t)k < b->cap) {
-            b->len += (size_t)k;
-            return;
-        }
-        size_t cap = 2 * b->cap + (size_t)k + 4096;
-        char *np = realloc(b->p, cap);
-        if (!np)
-            return;
-        b->p = np;
-        b->cap = cap;
-    }
-}
-
-static void sb_num(sbuf *b, double v)
+static void sb_num(cli_buf *b, double v)
 {
     if (isfinite(v))
-        sb_printf(b, ",%.15g", v);
+        cli_bprintf(b, ",%.15g", v);
     else
-        sb_printf(b, ",");
+        cli_bprintf(b, ",");
 }
 
 /* CSV field: quoted when it holds a comma, quote or newline. */
-static void sb_field(sbuf *b, const char *s, int lead_comma)
+static void sb_field(cli_buf *b, const char *s, int lead_comma)
 {
     if (lead_comma)
-        sb_printf(b, ",");
+        cli_bprintf(b, ",");
     if (!strpbrk(s, ",\"\n")) {
-        sb_printf(b, "%s", s);
+        cli_bprintf(b, "%s", s);
         return;
     }
-    sb_printf(b, "\"");
+    cli_bprintf(b, "\"");
     for (const char *q = s; *q; q++)
-        sb_printf(b, *q == '"' ? "\"\"" : "%c", *q);
-    sb_printf(b, "\"");
-}
-
-static json_t *jnum(double v)
-{
-    return isfinite(v) ? json_real(v) : json_null();
+        cli_bprintf(b, *q == '"' ? "\"\"" : "%c", *q);
+    cli_bprintf(b, "\"");
 }
 
 /* ---------------------------------------------------------------- JSON */
@@ -367,16 +331,16 @@ static json_t *jnum(double v)
 static json_t *line_json(const cs_split_line *l, int with_area)
 {
     json_t *o = json_object();
-    json_object_set_new(o, "center_hz", jnum(l->center_hz));
-    json_object_set_new(o, "center_hz_err", jnum(l->center_hz_err));
-    json_object_set_new(o, "fwhm_hz", jnum(l->fwhm_hz));
-    json_object_set_new(o, "fwhm_hz_err", jnum(l->fwhm_hz_err));
+    json_object_set_new(o, "center_hz", cli_jnum(l->center_hz));
+    json_object_set_new(o, "center_hz_err", cli_jnum(l->center_hz_err));
+    json_object_set_new(o, "fwhm_hz", cli_jnum(l->fwhm_hz));
+    json_object_set_new(o, "fwhm_hz_err", cli_jnum(l->fwhm_hz_err));
     if (with_area) {
-        json_object_set_new(o, "area", jnum(l->area));
-        json_object_set_new(o, "area_err", jnum(l->area_err));
+        json_object_set_new(o, "area", cli_jnum(l->area));
+        json_object_set_new(o, "area_err", cli_jnum(l->area_err));
     }
-    json_object_set_new(o, "shift_hz", jnum(l->shift_hz));
-    json_object_set_new(o, "shift_hz_err", jnum(l->shift_hz_err));
+    json_object_set_new(o, "shift_hz", cli_jnum(l->shift_hz));
+    json_object_set_new(o, "shift_hz_err", cli_jnum(l->shift_hz_err));
     return o;
 }
 
@@ -384,18 +348,18 @@ static json_t *burst_json(const cs_burst *b)
 {
     json_t *o = json_object();
     json_object_set_new(o, "found", json_boolean(b->status == CS_BURST_FOUND));
-    json_object_set_new(o, "snr", jnum(b->snr));
-    json_object_set_new(o, "floor", jnum(b->floor));
+    json_object_set_new(o, "snr", cli_jnum(b->snr));
+    json_object_set_new(o, "floor", cli_jnum(b->floor));
     if (b->status == CS_BURST_FOUND) {
-        json_object_set_new(o, "peak_time_s", jnum(b->peak_time_s));
-        json_object_set_new(o, "peak", jnum(b->peak));
-        json_object_set_new(o, "fwhm_s", jnum(b->fwhm_s));
-        json_object_set_new(o, "half_rise_s", jnum(b->half_rise_s));
-        json_object_set_new(o, "half_fall_s", jnum(b->half_fall_s));
-        json_object_set_new(o, "onset_s", jnum(b->onset_s));
-        json_object_set_new(o, "end_s", jnum(b->end_s));
-        json_object_set_new(o, "tail_start_s", jnum(b->tail_start_s));
-        json_object_set_new(o, "fade_s", jnum(b->fade_s));
+        json_object_set_new(o, "peak_time_s", cli_jnum(b->peak_time_s));
+        json_object_set_new(o, "peak", cli_jnum(b->peak));
+        json_object_set_new(o, "fwhm_s", cli_jnum(b->fwhm_s));
+        json_object_set_new(o, "half_rise_s", cli_jnum(b->half_rise_s));
+        json_object_set_new(o, "half_fall_s", cli_jnum(b->half_fall_s));
+        json_object_set_new(o, "onset_s", cli_jnum(b->onset_s));
+        json_object_set_new(o, "end_s", cli_jnum(b->end_s));
+        json_object_set_new(o, "tail_start_s", cli_jnum(b->tail_start_s));
+        json_object_set_new(o, "fade_s", cli_jnum(b->fade_s));
         json_object_set_new(o, "onset_clipped", json_boolean(b->onset_clipped));
         json_object_set_new(o, "end_clipped", json_boolean(b->end_clipped));
     }
@@ -434,41 +398,41 @@ static json_t *fit_json(const cs_split_fit *f)
         const cs_gatefit_result *r = f->gfit;
         json_object_set_new(o, "status", json_string(cs_fit_status_name(r->status)));
         json_object_set_new(o, "stop", json_string(cs_fit_stop_name(r->stop)));
-        json_object_set_new(o, "chi2", jnum(r->chi2));
+        json_object_set_new(o, "chi2", cli_jnum(r->chi2));
         json_object_set_new(o, "dof", json_integer((json_int_t)r->dof));
-        json_object_set_new(o, "redchi2", jnum(r->redchi2));
+        json_object_set_new(o, "redchi2", cli_jnum(r->redchi2));
         json_object_set_new(o, "noise", json_string(cs_gatefit_noise_name(r->noise)));
-        json_object_set_new(o, "noise_sd", jnum(r->noise_sd));
+        json_object_set_new(o, "noise_sd", cli_jnum(r->noise_sd));
         json_object_set_new(o, "errors_scaled", json_boolean(r->errors_scaled));
         json_object_set_new(o, "niter", json_integer((json_int_t)r->niter));
         json_t *fr = json_object();
         json_object_set_new(fr, "first_sample", json_integer((json_int_t)r->first));
         json_object_set_new(fr, "samples", json_integer((json_int_t)r->m));
         json_object_set_new(fr, "samples_used", json_integer((json_int_t)r->nused));
-        json_object_set_new(fr, "t_from_s", jnum(r->t_gate_s));
-        json_object_set_new(fr, "t_to_s", jnum(r->t_gate_s + (double)r->m * r->dt_s));
+        json_object_set_new(fr, "t_from_s", cli_jnum(r->t_gate_s));
+        json_object_set_new(fr, "t_to_s", cli_jnum(r->t_gate_s + (double)r->m * r->dt_s));
         json_object_set_new(o, "fit_range", fr);
         for (size_t k = 0; k < r->ncomp; k++) {
             const cs_gatefit_component *c = &r->comp[k];
             json_t *jc = json_object();
             json_object_set_new(jc, "profile", json_string(cs_gatefit_kind_name(c->kind)));
-            json_object_set_new(jc, "center_hz", jnum(c->center_hz));
-            json_object_set_new(jc, "center_hz_err", jnum(c->center_hz_err));
-            json_object_set_new(jc, "fwhm_hz", jnum(c->fwhm_hz));
-            json_object_set_new(jc, "fwhm_hz_err", jnum(c->fwhm_hz_err));
+            json_object_set_new(jc, "center_hz", cli_jnum(c->center_hz));
+            json_object_set_new(jc, "center_hz_err", cli_jnum(c->center_hz_err));
+            json_object_set_new(jc, "fwhm_hz", cli_jnum(c->fwhm_hz));
+            json_object_set_new(jc, "fwhm_hz_err", cli_jnum(c->fwhm_hz_err));
             if (c->kind == CS_GATEFIT_DECAY) {
-                json_object_set_new(jc, "gamma_per_s", jnum(c->gamma_per_s));
-                json_object_set_new(jc, "gamma_per_s_err", jnum(c->gamma_per_s_err));
+                json_object_set_new(jc, "gamma_per_s", cli_jnum(c->gamma_per_s));
+                json_object_set_new(jc, "gamma_per_s_err", cli_jnum(c->gamma_per_s_err));
             } else {
-                json_object_set_new(jc, "tau_s", jnum(c->tau_s));
-                json_object_set_new(jc, "tau_s_err", jnum(c->tau_s_err));
-                json_object_set_new(jc, "t_peak_s", jnum(c->t_peak_s));
-                json_object_set_new(jc, "t_peak_s_err", jnum(c->t_peak_s_err));
+                json_object_set_new(jc, "tau_s", cli_jnum(c->tau_s));
+                json_object_set_new(jc, "tau_s_err", cli_jnum(c->tau_s_err));
+                json_object_set_new(jc, "t_peak_s", cli_jnum(c->t_peak_s));
+                json_object_set_new(jc, "t_peak_s_err", cli_jnum(c->t_peak_s_err));
             }
-            json_object_set_new(jc, "amplitude", jnum(c->amplitude));
-            json_object_set_new(jc, "amplitude_err", jnum(c->amplitude_err));
-            json_object_set_new(jc, "phase_rad", jnum(c->phase_rad));
-            json_object_set_new(jc, "phase_rad_err", jnum(c->phase_rad_err));
+            json_object_set_new(jc, "amplitude", cli_jnum(c->amplitude));
+            json_object_set_new(jc, "amplitude_err", cli_jnum(c->amplitude_err));
+            json_object_set_new(jc, "phase_rad", cli_jnum(c->phase_rad));
+            json_object_set_new(jc, "phase_rad_err", cli_jnum(c->phase_rad_err));
             json_array_append_new(comps, jc);
         }
     } else if (f->pfit && f->pmodel) {
@@ -477,19 +441,19 @@ static json_t *fit_json(const cs_split_fit *f)
         json_object_set_new(o, "status", json_string(cs_fit_status_name(r->status)));
         json_object_set_new(o, "stop", json_string(cs_fit_stop_name(r->stop)));
         json_object_set_new(o, "baseline", json_string(cs_baseline_name(m->baseline)));
-        json_object_set_new(o, "chi2", jnum(r->chi2));
+        json_object_set_new(o, "chi2", cli_jnum(r->chi2));
         json_object_set_new(o, "dof", json_integer((json_int_t)r->dof));
-        json_object_set_new(o, "redchi2", jnum(r->redchi2));
+        json_object_set_new(o, "redchi2", cli_jnum(r->redchi2));
         json_object_set_new(o, "weights", json_string("sigma = first-pass model / sqrt(shots)"));
-        json_object_set_new(o, "error_scale", jnum(f->err_scale));
-        json_object_set_new(o, "energy_scale_s", jnum(f->energy_scale));
+        json_object_set_new(o, "error_scale", cli_jnum(f->err_scale));
+        json_object_set_new(o, "energy_scale_s", cli_jnum(f->energy_scale));
         json_object_set_new(o, "niter", json_integer((json_int_t)r->niter));
         json_t *fr = json_object();
-        json_object_set_new(fr, "f_from_hz", jnum(f->fmin_hz));
-        json_object_set_new(fr, "f_to_hz", jnum(f->fmax_hz));
+        json_object_set_new(fr, "f_from_hz", cli_jnum(f->fmin_hz));
+        json_object_set_new(fr, "f_to_hz", cli_jnum(f->fmax_hz));
         json_object_set_new(fr, "nfft", json_integer((json_int_t)f->nfft));
-        json_object_set_new(fr, "df_hz", jnum(f->df_hz));
-        json_object_set_new(fr, "enbw_hz", jnum(f->enbw_hz));
+        json_object_set_new(fr, "df_hz", cli_jnum(f->df_hz));
+        json_object_set_new(fr, "enbw_hz", cli_jnum(f->enbw_hz));
         json_object_set_new(fr, "shots", json_integer((json_int_t)f->nshots));
         json_object_set_new(fr, "first_sample", json_integer((json_int_t)f->first));
         json_object_set_new(fr, "samples", json_integer((json_int_t)f->m));
@@ -499,13 +463,13 @@ static json_t *fit_json(const cs_split_fit *f)
             size_t ai = mc->first + mc->type->nparams - 1;
             json_t *jc = json_object();
             json_object_set_new(jc, "profile", json_string(mc->type->name));
-            json_object_set_new(jc, "center_hz", jnum(r->value[mc->first]));
-            json_object_set_new(jc, "center_hz_err", jnum(r->err[mc->first]));
-            json_object_set_new(jc, "fwhm_hz", jnum(r->derived[k].value[CS_PROFILE_FWHM]));
-            json_object_set_new(jc, "fwhm_hz_err", jnum(r->derived[k].err[CS_PROFILE_FWHM]));
-            json_object_set_new(jc, "area", jnum(r->value[ai] * f->energy_scale));
-            json_object_set_new(jc, "area_err", jnum(r->err[ai] * f->energy_scale));
-            json_object_set_new(jc, "psd_area", jnum(r->value[ai]));
+            json_object_set_new(jc, "center_hz", cli_jnum(r->value[mc->first]));
+            json_object_set_new(jc, "center_hz_err", cli_jnum(r->err[mc->first]));
+            json_object_set_new(jc, "fwhm_hz", cli_jnum(r->derived[k].value[CS_PROFILE_FWHM]));
+            json_object_set_new(jc, "fwhm_hz_err", cli_jnum(r->derived[k].err[CS_PROFILE_FWHM]));
+            json_object_set_new(jc, "area", cli_jnum(r->value[ai] * f->energy_scale));
+            json_object_set_new(jc, "area_err", cli_jnum(r->err[ai] * f->energy_scale));
+            json_object_set_new(jc, "psd_area", cli_jnum(r->value[ai]));
             json_array_append_new(comps, jc);
         }
     } else {
@@ -523,8 +487,8 @@ static json_t *era_json(const cs_split_fit *f)
         json_object_set_new(o, "message", json_string(f->message));
     json_object_set_new(o, "method", json_string(f->gate_aware ? "gate-aware" : "plain profiles on the gated PSD"));
     json_object_set_new(o, "model", json_string(f->model));
-    json_object_set_new(o, "significance", jnum(f->significance));
-    json_object_set_new(o, "significance_min", jnum(f->significance_min));
+    json_object_set_new(o, "significance", cli_jnum(f->significance));
+    json_object_set_new(o, "significance_min", cli_jnum(f->significance_min));
     json_object_set_new(o, "gate", json_string(f->gate_ok ? f->gate.name : ""));
     json_object_set_new(o, "fit", fit_json(f));
     return o;
@@ -533,8 +497,8 @@ static json_t *era_json(const cs_split_fit *f)
 static json_t *agree_json(const cs_split_agree *a)
 {
     json_t *o = json_object();
-    json_object_set_new(o, "z_center", jnum(a->z_center));
-    json_object_set_new(o, "z_fwhm", jnum(a->z_fwhm));
+    json_object_set_new(o, "z_center", cli_jnum(a->z_center));
+    json_object_set_new(o, "z_fwhm", cli_jnum(a->z_fwhm));
     json_object_set_new(o, "flagged", json_boolean(a->flagged));
     return o;
 }
@@ -551,10 +515,10 @@ static json_t *shot_json(const cs_split_shot *s, int averaged, size_t nshots)
         json_object_set_new(o, "message", json_string(s->message));
     json_object_set_new(o, "lo_hz", json_real(s->lo_hz));
     json_object_set_new(o, "lo_from", json_string(s->lo_from_meta ? "metadata" : "option or 0"));
-    json_object_set_new(o, "reference_hz", jnum(s->ref_hz));
+    json_object_set_new(o, "reference_hz", cli_jnum(s->ref_hz));
     json_object_set_new(o, "reference_from",
                         json_string(isfinite(s->ref_hz) ? (s->ref_from_meta ? "metadata" : "option") : "none"));
-    json_object_set_new(o, "noise_floor", jnum(s->noise_floor));
+    json_object_set_new(o, "noise_floor", cli_jnum(s->noise_floor));
     json_object_set_new(o, "burst_detect", burst_json(&s->burst));
     json_t *g = json_array();
     json_array_append_new(g, gate_json(&s->era[CS_SPLIT_BURST], "burst"));
@@ -562,8 +526,8 @@ static json_t *shot_json(const cs_split_shot *s, int averaged, size_t nshots)
     json_object_set_new(o, "gates", g);
     json_object_set_new(o, "burst", era_json(&s->era[CS_SPLIT_BURST]));
     json_object_set_new(o, "tail", era_json(&s->era[CS_SPLIT_TAIL]));
-    json_object_set_new(o, "era_shift_hz", jnum(s->era_shift_hz));
-    json_object_set_new(o, "era_shift_hz_err", jnum(s->era_shift_hz_err));
+    json_object_set_new(o, "era_shift_hz", cli_jnum(s->era_shift_hz));
+    json_object_set_new(o, "era_shift_hz_err", cli_jnum(s->era_shift_hz_err));
     json_object_set_new(o, "era_shift_note", json_string("burst centre minus tail centre; the gates are disjoint "
                                                          "(independent noise), so the errors add in quadrature"));
     /* independent estimates */
@@ -611,16 +575,16 @@ static json_t *shot_json(const cs_split_shot *s, int averaged, size_t nshots)
             json_object_set_new(jr, "gate_start_s", json_real(r->gate.start_s));
             json_object_set_new(jr, "gate_length_s", json_real(r->gate.length_s));
             json_object_set_new(jr, "status", json_string(cs_split_status_name(r->status)));
-            json_object_set_new(jr, "dev_center_sigma", jnum(r->dev_center));
-            json_object_set_new(jr, "dev_fwhm_sigma", jnum(r->dev_fwhm));
+            json_object_set_new(jr, "dev_center_sigma", cli_jnum(r->dev_center));
+            json_object_set_new(jr, "dev_fwhm_sigma", cli_jnum(r->dev_fwhm));
             json_array_append_new(rows, jr);
         }
         json_object_set_new(sw, "rows", rows);
         json_t *mx = json_object();
         for (int e = 0; e < CS_SPLIT_NERA; e++) {
             json_t *me = json_object();
-            json_object_set_new(me, "center_sigma", jnum(s->sweep_max_dev[e][0]));
-            json_object_set_new(me, "fwhm_sigma", jnum(s->sweep_max_dev[e][1]));
+            json_object_set_new(me, "center_sigma", cli_jnum(s->sweep_max_dev[e][0]));
+            json_object_set_new(me, "fwhm_sigma", cli_jnum(s->sweep_max_dev[e][1]));
             json_object_set_new(mx, cs_split_era_name((cs_split_era)e), me);
         }
         json_object_set_new(sw, "max_deviation", mx);
@@ -635,13 +599,13 @@ static json_t *stat_json(const cs_split_stat *st)
 {
     json_t *o = json_object();
     json_object_set_new(o, "n", json_integer((json_int_t)st->n));
-    json_object_set_new(o, "weighted_mean", jnum(st->mean));
-    json_object_set_new(o, "weighted_mean_err", jnum(st->mean_err));
-    json_object_set_new(o, "sd", jnum(st->sd));
-    json_object_set_new(o, "chi2", jnum(st->chi2));
+    json_object_set_new(o, "weighted_mean", cli_jnum(st->mean));
+    json_object_set_new(o, "weighted_mean_err", cli_jnum(st->mean_err));
+    json_object_set_new(o, "sd", cli_jnum(st->sd));
+    json_object_set_new(o, "chi2", cli_jnum(st->chi2));
     json_object_set_new(o, "dof", json_integer((json_int_t)st->dof));
-    json_object_set_new(o, "chi2_dof", jnum(st->redchi2));
-    json_object_set_new(o, "p_value", jnum(st->p_value));
+    json_object_set_new(o, "chi2_dof", cli_jnum(st->redchi2));
+    json_object_set_new(o, "p_value", cli_jnum(st->p_value));
     return o;
 }
 
@@ -656,8 +620,8 @@ static json_t *settings_json(const split_opts *so)
     json_object_set_new(o, "late_window", json_string(cs_window_format(&p->late_window, wb, sizeof wb)));
     json_object_set_new(o, "whole_window", json_string(cs_window_format(&p->whole_window, wb, sizeof wb)));
     json_object_set_new(o, "pad", json_integer((json_int_t)p->pad));
-    json_object_set_new(o, "lo_hz", jnum(p->lo_hz));
-    json_object_set_new(o, "ref_hz", jnum(p->ref_hz));
+    json_object_set_new(o, "lo_hz", cli_jnum(p->lo_hz));
+    json_object_set_new(o, "ref_hz", cli_jnum(p->ref_hz));
     json_object_set_new(o, "burst_model", json_string(p->burst_model));
     json_object_set_new(o, "tail_model", json_string(p->tail_model));
     json_object_set_new(o, "burst_plain_model", json_string(p->burst_plain));
@@ -804,23 +768,23 @@ static void print_stat(const char *what, const cs_split_stat *st)
 
 /* ---------------------------------------------------------------- tables */
 
-static void table_header(sbuf *t)
+static void table_header(cli_buf *t)
 {
-    sb_printf(t, "file,shot,kind,era,status,method,model,gate_start_s,gate_length_s,center_hz,center_hz_err,fwhm_hz,"
+    cli_bprintf(t, "file,shot,kind,era,status,method,model,gate_start_s,gate_length_s,center_hz,center_hz_err,fwhm_hz,"
                  "fwhm_hz_err,area,area_err,shift_hz,shift_hz_err,era_shift_hz,era_shift_hz_err,whole_center_hz,"
                  "whole_center_hz_err,whole_fwhm_hz,whole_fwhm_hz_err,z_whole_center,z_whole_fwhm,pencil_center_hz,"
                  "pencil_center_hz_err,pencil_fwhm_hz,pencil_fwhm_hz_err,z_pencil_center,z_pencil_fwhm\n");
 }
 
-static void table_rows(sbuf *t, const cs_split_shot *s, const char *kind)
+static void table_rows(cli_buf *t, const cs_split_shot *s, const char *kind)
 {
     for (int e = 0; e < CS_SPLIT_NERA; e++) {
         const cs_split_fit *f = &s->era[e];
         const cs_split_line *l = &f->line, *w = &s->whole_line[e];
         sb_field(t, s->source, 0);
-        sb_printf(t, ",%zu,%s,%s,", s->shot, kind, cs_split_era_name((cs_split_era)e));
+        cli_bprintf(t, ",%zu,%s,%s,", s->shot, kind, cs_split_era_name((cs_split_era)e));
         sb_field(t, cs_split_status_name(f->status), 0);
-        sb_printf(t, ",%s,", f->gate_aware ? "gate-aware" : "plain");
+        cli_bprintf(t, ",%s,", f->gate_aware ? "gate-aware" : "plain");
         sb_field(t, f->model, 0);
         sb_num(t, f->gate_ok ? f->gate.start_s : NAN);
         sb_num(t, f->gate_ok ? f->gate.length_s : NAN);
@@ -833,38 +797,38 @@ static void table_rows(sbuf *t, const cs_split_shot *s, const char *kind)
         sb_num(t, pl ? pl->center_hz : NAN); sb_num(t, pl ? pl->center_hz_err : NAN);
         sb_num(t, pl ? pl->fwhm_hz : NAN); sb_num(t, pl ? pl->fwhm_hz_err : NAN);
         sb_num(t, pl ? s->agree_pencil.z_center : NAN); sb_num(t, pl ? s->agree_pencil.z_fwhm : NAN);
-        sb_printf(t, "\n");
+        cli_bprintf(t, "\n");
     }
 }
 
-static void table_mean_rows(sbuf *t, const cs_split_result *r)
+static void table_mean_rows(cli_buf *t, const cs_split_result *r)
 {
     for (int e = 0; e < CS_SPLIT_NERA; e++) {
-        sb_printf(t, ",,weighted_mean,%s,%s,,", cs_split_era_name((cs_split_era)e), r->center[e].n ? "ok" : "none");
-        sb_printf(t, ",,");
+        cli_bprintf(t, ",,weighted_mean,%s,%s,,", cs_split_era_name((cs_split_era)e), r->center[e].n ? "ok" : "none");
+        cli_bprintf(t, ",,");
         sb_num(t, r->center[e].mean); sb_num(t, r->center[e].mean_err);
         sb_num(t, r->fwhm[e].mean); sb_num(t, r->fwhm[e].mean_err);
-        sb_printf(t, ",,");
+        cli_bprintf(t, ",,");
         sb_num(t, r->shift[e].mean); sb_num(t, r->shift[e].mean_err);
         sb_num(t, r->era_shift.mean); sb_num(t, r->era_shift.mean_err);
-        sb_printf(t, ",,,,,,,,,,,,\n");
+        cli_bprintf(t, ",,,,,,,,,,,,\n");
     }
 }
 
-static void sweep_rows(sbuf *t, const cs_split_shot *s)
+static void sweep_rows(cli_buf *t, const cs_split_shot *s)
 {
     for (size_t i = 0; i < s->nsweep; i++) {
         const cs_split_sweep_row *r = &s->sweep[i];
         sb_field(t, s->source, 0);
-        sb_printf(t, ",%zu,%s,%s,%.12g,%s", s->shot, cs_split_sweep_kind_name(r->kind), cs_split_era_name(r->era),
+        cli_bprintf(t, ",%zu,%s,%s,%.12g,%s", s->shot, cs_split_sweep_kind_name(r->kind), cs_split_era_name(r->era),
                   r->value, r->in_w ? "w" : "s");
         sb_num(t, r->gate.start_s);
         sb_num(t, r->gate.length_s);
-        sb_printf(t, ",%s", cs_split_status_name(r->status));
+        cli_bprintf(t, ",%s", cs_split_status_name(r->status));
         const cs_split_line *l = &r->line;
         sb_num(t, l->center_hz); sb_num(t, l->center_hz_err); sb_num(t, l->fwhm_hz); sb_num(t, l->fwhm_hz_err);
         sb_num(t, r->dev_center); sb_num(t, r->dev_fwhm);
-        sb_printf(t, "\n");
+        cli_bprintf(t, "\n");
     }
 }
 
@@ -1036,7 +1000,7 @@ int cmd_split(int argc, char **argv)
 
     /* tables */
     if (so.table && res) {
-        sbuf t = {0};
+        cli_buf t = {0};
         table_header(&t);
         for (size_t i = 0; i < res->nshots; i++)
             table_rows(&t, &res->shots[i], "shot");
@@ -1048,8 +1012,8 @@ int cmd_split(int argc, char **argv)
         free(t.p);
     }
     if (so.sweep_table && res) {
-        sbuf t = {0};
-        sb_printf(&t, "file,shot,step,era,value,value_unit,gate_start_s,gate_length_s,status,center_hz,center_hz_err,"
+        cli_buf t = {0};
+        cli_bprintf(&t, "file,shot,step,era,value,value_unit,gate_start_s,gate_length_s,status,center_hz,center_hz_err,"
                       "fwhm_hz,fwhm_hz_err,dev_center_sigma,dev_fwhm_sigma\n");
         for (size_t i = 0; i < res->nshots; i++)
             sweep_rows(&t, &res->shots[i]);
@@ -1085,19 +1049,19 @@ int cmd_split(int argc, char **argv)
             } else {
                 for (int e = 0; e < CS_SPLIT_NERA; e++) {
                     json_t *o = json_object();
-                    json_object_set_new(o, "center_hz", jnum(res->center[e].mean));
-                    json_object_set_new(o, "center_hz_err", jnum(res->center[e].mean_err));
-                    json_object_set_new(o, "fwhm_hz", jnum(res->fwhm[e].mean));
-                    json_object_set_new(o, "fwhm_hz_err", jnum(res->fwhm[e].mean_err));
+                    json_object_set_new(o, "center_hz", cli_jnum(res->center[e].mean));
+                    json_object_set_new(o, "center_hz_err", cli_jnum(res->center[e].mean_err));
+                    json_object_set_new(o, "fwhm_hz", cli_jnum(res->fwhm[e].mean));
+                    json_object_set_new(o, "fwhm_hz_err", cli_jnum(res->fwhm[e].mean_err));
                     json_object_set_new(o, "area", json_null());
                     json_object_set_new(o, "area_err", json_null());
-                    json_object_set_new(o, "shift_hz", jnum(res->shift[e].mean));
-                    json_object_set_new(o, "shift_hz_err", jnum(res->shift[e].mean_err));
+                    json_object_set_new(o, "shift_hz", cli_jnum(res->shift[e].mean));
+                    json_object_set_new(o, "shift_hz_err", cli_jnum(res->shift[e].mean_err));
                     json_object_set_new(o, "fit", json_string("weighted mean over shots (see 'shots' and 'combined')"));
                     json_object_set_new(root, cs_split_era_name((cs_split_era)e), o);
                 }
-                json_object_set_new(root, "era_shift_hz", jnum(res->era_shift.mean));
-                json_object_set_new(root, "era_shift_hz_err", jnum(res->era_shift.mean_err));
+                json_object_set_new(root, "era_shift_hz", cli_jnum(res->era_shift.mean));
+                json_object_set_new(root, "era_shift_hz_err", cli_jnum(res->era_shift.mean_err));
                 json_t *s0 = json_array_get(shots, 0);
                 json_object_set(root, "gates", json_object_get(s0, "gates"));
                 json_object_set(root, "burst_detect", json_object_get(s0, "burst_detect"));
