@@ -195,6 +195,43 @@ START_TEST(test_recover_real)
 }
 END_TEST
 
+/* A long record (PSD of 2^16 bins): the whole-record fit is confined to the band that holds the
+ * lines (split_fit.c), which lies inside the axis, is narrower than it and holds both true
+ * centres with room to spare; the whole-record lines still recover the truth and agree with the
+ * eras. */
+START_TEST(test_whole_band)
+{
+    scenario s = base_scenario();
+    s.n = 32768;
+    s.f_b = 150e6;
+    cs_record *rec = make_record(&s, 21);
+    cs_split_result *r = run(&rec, 1, NULL, CS_OK);
+    const cs_split_shot *sh = &r->shots[0];
+    const cs_split_fit *w = &sh->whole;
+    ck_assert_int_eq(w->status, CS_SPLIT_OK);
+    double axis = 1.0 / s.dt, lo = s.lo - 0.5 * axis, hi = s.lo + 0.5 * axis;
+    ck_assert_msg(w->fmin_hz >= lo - w->df_hz && w->fmax_hz <= hi + w->df_hz && w->fmin_hz < w->fmax_hz,
+                  "fit range %.9g .. %.9g outside the axis", w->fmin_hz, w->fmax_hz);
+    ck_assert_msg(w->fmax_hz - w->fmin_hz < 0.5 * axis, "fit range %.3g Hz not confined to a band",
+                  w->fmax_hz - w->fmin_hz);
+    double room = 10 * sech_fwhm(s.tau);
+    ck_assert_msg(w->fmin_hz < s.lo + s.f_b - room && w->fmax_hz > s.lo + s.f_t + room,
+                  "fit range %.9g .. %.9g too tight around the lines", w->fmin_hz, w->fmax_hz);
+    const cs_split_line *b = &sh->whole_line[CS_SPLIT_BURST], *t = &sh->whole_line[CS_SPLIT_TAIL];
+    ck_assert(b->ok && t->ok);
+    assert_within("whole burst centre", b->center_hz, b->center_hz_err, s.lo + s.f_b, 4);
+    assert_within("whole tail centre", t->center_hz, t->center_hz_err, s.lo + s.f_t, 4);
+    assert_within("whole burst FWHM", b->fwhm_hz, b->fwhm_hz_err, sech_fwhm(s.tau), 4);
+    assert_within("whole tail FWHM", t->fwhm_hz, t->fwhm_hz_err, s.gamma / (2 * PI_T), 4);
+    for (int e = 0; e < CS_SPLIT_NERA; e++)
+        ck_assert_msg(sh->agree_whole[e].z_center < 3 && sh->agree_whole[e].z_fwhm < 3,
+                      "whole record vs %s era: z %.2f %.2f", cs_split_era_name((cs_split_era)e),
+                      sh->agree_whole[e].z_center, sh->agree_whole[e].z_fwhm);
+    cs_split_result_free(r);
+    cs_record_free(rec);
+}
+END_TEST
+
 /* ---------------------------------------------------------------- pulls */
 
 #define NPULL 50
@@ -533,6 +570,7 @@ static Suite *split_suite(void)
     tcase_set_timeout(tc, 120);
     tcase_add_test(tc, test_recover_one);
     tcase_add_test(tc, test_recover_real);
+    tcase_add_test(tc, test_whole_band);
     tcase_add_test(tc, test_explicit_gates_plain);
     suite_add_tcase(su, tc);
     tc = tcase_create("pulls");

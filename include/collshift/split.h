@@ -231,7 +231,7 @@ typedef struct cs_split_fit {
     double significance;                  /* amplitude / error or area / error of the line */
     double significance_min;              /* the level it had to reach */
     /* plain fits: the spectrum fitted */
-    double fmin_hz, fmax_hz;              /* frequency range fitted (the whole axis) */
+    double fmin_hz, fmax_hz;              /* frequency range fitted (whole record: the band around the lines, see split_fit.c) */
     size_t nfft, nshots;
     double df_hz, enbw_hz, err_scale;     /* bin, ENBW, factor applied to the errors
                                              (sqrt(enbw/df) x sqrt(chi2/dof) when > 1) */
