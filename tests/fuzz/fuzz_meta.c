@@ -17,7 +17,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         if (nl)
             *nl = '\0';
         cs_error_clear(&err);
-        (void)cs_meta_parse_line(&m, p, "fuzz", line, &err);
+        int rc = cs_meta_parse_line(&m, p, "fuzz", line, &err);
+        fuzz_assert_error(rc, err);
         if (!nl)
             break;
         p = nl + 1;

@@ -28,12 +28,14 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             if (!*line)
                 continue;
             cs_error_clear(&err);
+            int rc;
             switch (line[0]) {
-            case 'f': (void)cs_model_fix(m, line + 1, &err); break;
-            case 'b': (void)cs_model_bound(m, line + 1, &err); break;
-            case 't': (void)cs_model_tie(m, line + 1, &err); break;
-            default: (void)cs_model_start(m, line + 1, &err); break;
+            case 'f': rc = cs_model_fix(m, line + 1, &err); break;
+            case 'b': rc = cs_model_bound(m, line + 1, &err); break;
+            case 't': rc = cs_model_tie(m, line + 1, &err); break;
+            default: rc = cs_model_start(m, line + 1, &err); break;
             }
+            fuzz_assert_error(rc, err);
         }
         double *p = calloc(m->nparams ? m->nparams : 1, sizeof *p);
         if (!p)

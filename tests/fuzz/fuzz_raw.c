@@ -32,7 +32,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     cs_loaded_init(&l);
     cs_error err;
     cs_error_clear(&err);
-    (void)cs_io_load(path, &o, &l, &err);
+    int rc = cs_io_load(path, &o, &l, &err);
+        fuzz_assert_load(rc, &l, &err, o.min_points);
     cs_loaded_release(&l);
     return 0;
 }

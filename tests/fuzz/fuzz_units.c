@@ -2,6 +2,7 @@
  * column-name buffer size; the rest of the first line is the text, an optional second line the
  * default unit. */
 #include <collshift/units.h>
+#include <math.h>
 #include "fuzz_common.h"
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
@@ -24,7 +25,10 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     cs_dim dim = CS_DIM_UNKNOWN;
     cs_error err;
     cs_error_clear(&err);
-    (void)cs_quantity_parse(text, want, def, &si, &u, &dim, &err);
+    int rc = cs_quantity_parse(text, want, def, &si, &u, &dim, &err);
+    fuzz_assert_error(rc, err);
+    /* a parsed quantity is a finite number of the wanted dimension */
+    fuzz_assert(rc != 0 || (isfinite(si) && (want == CS_DIM_UNKNOWN || dim == want)));
     (void)cs_quantity_parse(text, want, NULL, &si, NULL, NULL, NULL);
     (void)cs_quantity_parse(text, CS_DIM_UNKNOWN, def, &si, &u, &dim, NULL);
 
