@@ -8,6 +8,7 @@
 #include <stdio.h>
 
 #include <collshift/error.h>
+#include <collshift/gatefit.h>
 #include <collshift/io.h>
 
 /* Exit codes (documented in `collshift --help`). */
@@ -111,6 +112,9 @@ void cli_bprintf(cli_buf *b, const char *fmt, ...)
     ;
 /* A JSON number, or null for NaN/Inf (numbers that could not be computed are never numbers). */
 json_t *cli_jnum(double v);
+/* The fields of a gate-aware component (profile, centre, FWHM, rate or tau and peak time,
+ * amplitude, phase, each with its error) set on the JSON object jc. */
+void cli_gatefit_component_json(const cs_gatefit_component *c, json_t *jc);
 
 /* Write text to PATH atomically (temporary file in the same folder, then rename), or to stdout
  * when path is "-". Returns 0, or prints a message and returns CLI_EXIT_DATA. */

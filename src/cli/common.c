@@ -225,3 +225,25 @@ json_t *cli_jnum(double v)
 {
     return isfinite(v) ? json_real(v) : json_null();
 }
+
+void cli_gatefit_component_json(const cs_gatefit_component *c, json_t *jc)
+{
+    json_object_set_new(jc, "profile", json_string(cs_gatefit_kind_name(c->kind)));
+    json_object_set_new(jc, "center_hz", cli_jnum(c->center_hz));
+    json_object_set_new(jc, "center_hz_err", cli_jnum(c->center_hz_err));
+    json_object_set_new(jc, "fwhm_hz", cli_jnum(c->fwhm_hz));
+    json_object_set_new(jc, "fwhm_hz_err", cli_jnum(c->fwhm_hz_err));
+    if (c->kind == CS_GATEFIT_DECAY) {
+        json_object_set_new(jc, "gamma_per_s", cli_jnum(c->gamma_per_s));
+        json_object_set_new(jc, "gamma_per_s_err", cli_jnum(c->gamma_per_s_err));
+    } else {
+        json_object_set_new(jc, "tau_s", cli_jnum(c->tau_s));
+        json_object_set_new(jc, "tau_s_err", cli_jnum(c->tau_s_err));
+        json_object_set_new(jc, "t_peak_s", cli_jnum(c->t_peak_s));
+        json_object_set_new(jc, "t_peak_s_err", cli_jnum(c->t_peak_s_err));
+    }
+    json_object_set_new(jc, "amplitude", cli_jnum(c->amplitude));
+    json_object_set_new(jc, "amplitude_err", cli_jnum(c->amplitude_err));
+    json_object_set_new(jc, "phase_rad", cli_jnum(c->phase_rad));
+    json_object_set_new(jc, "phase_rad_err", cli_jnum(c->phase_rad_err));
+}

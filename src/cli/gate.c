@@ -368,24 +368,7 @@ static json_t *gatefit_gate(cs_gate_workspace *ws, const cs_record *rec, const c
     for (size_t c = 0; c < r->ncomp; c++) {
         const cs_gatefit_component *k = &r->comp[c];
         json_t *jc = json_object();
-        json_object_set_new(jc, "profile", json_string(cs_gatefit_kind_name(k->kind)));
-        json_object_set_new(jc, "center_hz", cli_jnum(k->center_hz));
-        json_object_set_new(jc, "center_hz_err", cli_jnum(k->center_hz_err));
-        json_object_set_new(jc, "fwhm_hz", cli_jnum(k->fwhm_hz));
-        json_object_set_new(jc, "fwhm_hz_err", cli_jnum(k->fwhm_hz_err));
-        if (k->kind == CS_GATEFIT_DECAY) {
-            json_object_set_new(jc, "gamma_per_s", cli_jnum(k->gamma_per_s));
-            json_object_set_new(jc, "gamma_per_s_err", cli_jnum(k->gamma_per_s_err));
-        } else {
-            json_object_set_new(jc, "tau_s", cli_jnum(k->tau_s));
-            json_object_set_new(jc, "tau_s_err", cli_jnum(k->tau_s_err));
-            json_object_set_new(jc, "t_peak_s", cli_jnum(k->t_peak_s));
-            json_object_set_new(jc, "t_peak_s_err", cli_jnum(k->t_peak_s_err));
-        }
-        json_object_set_new(jc, "amplitude", cli_jnum(k->amplitude));
-        json_object_set_new(jc, "amplitude_err", cli_jnum(k->amplitude_err));
-        json_object_set_new(jc, "phase_rad", cli_jnum(k->phase_rad));
-        json_object_set_new(jc, "phase_rad_err", cli_jnum(k->phase_rad_err));
+        cli_gatefit_component_json(k, jc);
         json_array_append_new(comps, jc);
         if (!quiet)
             printf("      fit %zu %-6s center %s, fwhm %s  (gate-aware)\n", c + 1, cs_gatefit_kind_name(k->kind),
