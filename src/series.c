@@ -329,8 +329,16 @@ int cs_series_run(cs_series *s, const cs_series_params *p, cs_error *err)
        saving and restoring it never restore the aborting default in another thread */
     gsl_set_error_handler_off();
     size_t done = 0;
-    int nomem = 0;
+    int nomem = 0, stopped = 0;
     long n = (long)s->n;
+    /* entries to analyse start from "pending" with NaN results, so that those a stop leaves
+       behind never show stale numbers */
+    for (size_t i = 0; i < s->n; i++) {
+        if (p->keep_finished && s->e[i].status != CS_SERIES_PENDING)
+            done++;
+        else
+            entry_reset(&s->e[i]);
+    }
 #ifdef _OPENMP
 #pragma omp parallel num_threads(p->threads)
 #endif
@@ -347,13 +355,31 @@ int cs_series_run(cs_series *s, const cs_series_params *p, cs_error *err)
 #pragma omp for schedule(dynamic, 1)
 #endif
         for (long i = 0; i < n; i++) {
-            if (gws && fws)
-                run_entry(&s->e[i], p, gws, fws);
+            cs_series_entry *e = &s->e[i];
+            if (e->status != CS_SERIES_PENDING)
+                continue;   /* kept from an earlier run (keep_finished) */
+            int halt;
+#ifdef _OPENMP
+#pragma omp atomic read
+#endif
+            halt = stopped;
+            if (!halt && p->stop && p->stop(p->stop_ctx)) {
+                halt = 1;
+#ifdef _OPENMP
+#pragma omp atomic write
+#endif
+                stopped = 1;
+            }
+            if (halt || !gws || !fws)
+                continue;   /* stays pending */
+            run_entry(e, p, gws, fws);
 #ifdef _OPENMP
 #pragma omp critical(cs_series_progress)
 #endif
             {
                 done++;
+                if (p->on_entry)
+                    p->on_entry(e, p->entry_ctx);
                 if (p->progress)
                     p->progress(done, s->n, p->progress_ctx);
             }
@@ -363,9 +389,21 @@ int cs_series_run(cs_series *s, const cs_series_params *p, cs_error *err)
     }
     if (nomem)
         return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "series: out of memory for the workspaces");
+    size_t pending = cs_series_count(s, CS_SERIES_PENDING);
+    if (pending)
+        return cs_error_set(err, CS_ENOCONV, s->manifest, -1, -1,
+                            "stopped: %zu of %zu entries not analysed", pending, s->n);
     for (size_t i = 0; i < s->n; i++)
         if (s->e[i].status != CS_SERIES_OK) {
             return cs_error_set(err, CS_ENOCONV, s->manifest, s->e[i].line, -1, "%.400s", s->e[i].message);
         }
     return CS_OK;
+}
+
+size_t cs_series_count(const cs_series *s, cs_series_status st)
+{
+    size_t k = 0;
+    for (size_t i = 0; s && i < s->n; i++)
+        k += s->e[i].status == st;
+    return k;
 }

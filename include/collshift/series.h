@@ -135,6 +135,13 @@ void cs_series_free(cs_series *s);
 
 /* Called after each entry (from one thread at a time): done of total entries finished. */
 typedef void (*cs_series_progress_fn)(size_t done, size_t total, void *ctx);
+/* Called with each entry as soon as it is finished (from one thread at a time, before the
+ * progress call), e.g. to journal its result; not called for entries kept (keep_finished). */
+typedef void (*cs_series_entry_fn)(const cs_series_entry *e, void *ctx);
+/* Asked before each entry starts; nonzero stops the run: no further entry starts (entries
+ * already running finish and are reported), the rest stay CS_SERIES_PENDING. Must be cheap and
+ * safe to call from several threads (e.g. reading a volatile sig_atomic_t set by a handler). */
+typedef int (*cs_series_stop_fn)(void *ctx);
 
 /* Tunables (start from cs_series_params_default). Text fields are borrowed. */
 typedef struct cs_series_params {
@@ -148,6 +155,12 @@ typedef struct cs_series_params {
     int threads;                      /* >= 1 (default 1) */
     cs_series_progress_fn progress;   /* NULL: none */
     void *progress_ctx;
+    cs_series_entry_fn on_entry;      /* NULL: none */
+    void *entry_ctx;
+    cs_series_stop_fn stop;           /* NULL: never stop */
+    void *stop_ctx;
+    int keep_finished;                /* 1: entries whose status is not CS_SERIES_PENDING keep
+                                         their results and are not analysed again (resuming) */
 } cs_series_params;
 
 void cs_series_params_default(cs_series_params *p);
@@ -155,11 +168,16 @@ void cs_series_params_default(cs_series_params *p);
 /* 1 when this build runs entries in parallel (OpenMP), else 0 (threads are then ignored). */
 int cs_series_parallel_available(void);
 
-/* Analyse every entry (their results are overwritten). Returns CS_OK when every entry is
- * CS_SERIES_OK; CS_ENOCONV when some entry is partial or failed (its status, error_code and
- * message say why; the others hold their results); CS_EINVAL (NULL s or p, threads < 1, a model
- * that cannot be built); CS_ENOMEM. */
+/* Analyse every entry (their results are overwritten; with p->keep_finished only the entries
+ * still CS_SERIES_PENDING). Returns CS_OK when every entry is CS_SERIES_OK; CS_ENOCONV when some
+ * entry is partial or failed (its status, error_code and message say why; the others hold their
+ * results), or when p->stop stopped the run (the entries not analysed are CS_SERIES_PENDING with
+ * NaN results; the message says how many); CS_EINVAL (NULL s or p, threads < 1, a model that
+ * cannot be built); CS_ENOMEM. */
 int cs_series_run(cs_series *s, const cs_series_params *p, cs_error *err);
+
+/* Number of entries of s whose status is st (0 for NULL s). */
+size_t cs_series_count(const cs_series *s, cs_series_status st);
 
 /* ---- shards: one campaign over several machines ------------------------------------------ */
 

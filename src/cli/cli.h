@@ -120,4 +120,41 @@ void cli_gatefit_component_json(const cs_gatefit_component *c, json_t *jc);
  * when path is "-". Returns 0, or prints a message and returns CLI_EXIT_DATA. */
 int cli_write_text(const char *path, const char *text);
 
+/* One entry of a series as the JSON object of 'series --json' (series_out.c; also a journal
+ * line of --resume), and back (series_journal.c): series_entry_from_json fills *e (file and path are allocated; free
+ * them) and returns 0, or -1 with a reason in *why. merge and --resume read entries with it. */
+struct cs_series_entry;
+json_t *series_entry_json(const struct cs_series_entry *e);
+int series_entry_from_json(const json_t *o, struct cs_series_entry *e, const char **why);
+
+/* The journal of `collshift series` (series_journal.c): one line per finished entry, flushed to
+ * disk at once, read back by --resume; and the SIGINT/SIGTERM handling that stops a run. */
+struct series_opts;
+struct cs_series;
+typedef struct series_journal {
+    char *path;               /* NULL: no journal (free it) */
+    int fd;                   /* -1: not open */
+    int failed;               /* a write failed: journaling stopped, the run goes on */
+    size_t written;           /* entries journaled by this run */
+    int raise_sig;            /* test hook: raise this signal ... */
+    size_t raise_after;       /* ... after this many entries of this run (0: never) */
+} series_journal;
+/* Open the journal (path: journal, else the first output naming a file + ".journal"; none when
+ * neither) for a fresh run, or with resume read it, check its fingerprint, give its finished
+ * entries to s (all but failed and partial ones with retry_failed) and append from there.
+ * Returns 0, or prints a message and returns an exit code. */
+int series_journal_open(series_journal *j, const struct series_opts *so, struct cs_series *s,
+                        const char *journal, int resume, int retry_failed);
+/* cs_series_params.on_entry: append the entry (ctx: the series_journal). */
+void series_journal_entry(const struct cs_series_entry *e, void *ctx);
+void series_journal_close(series_journal *j);
+/* Read the test hook CS_SERIES_TEST_RAISE=INT:N or TERM:N (raise the signal after N entries). */
+void series_journal_test_hook(series_journal *j);
+/* SIGINT and SIGTERM stop a run (series_stop_requested turns nonzero) instead of killing it. */
+void series_signals_catch(void);
+void series_signals_release(void);
+int series_stop_requested(void *ctx);
+/* The signal that stopped the run, or 0. */
+int series_signal_received(void);
+
 #endif /* CS_CLI_H */

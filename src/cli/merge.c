@@ -35,7 +35,7 @@ const char *const cmd_merge_usage[] = {
     "\n"
     "Exit codes: 0 every entry measured; 1 some entry failed or was only partly measured; 2 usage;\n"
     "3 a shard cannot be read, the shards come from different manifests or options, or an entry\n"
-    "is missing or given twice.\n",
+    "is missing or given twice, or a shard comes from an interrupted run (finish it with --resume).\n",
     NULL,
 };
 
@@ -52,24 +52,6 @@ static const char *str(const json_t *o, const char *key)
     return json_string_value(json_object_get(o, key));
 }
 
-static void read_line(const json_t *o, cs_series_line *l)
-{
-    l->ok = json_is_object(o);
-    if (!l->ok) {
-        l->center_hz = l->center_hz_err = l->shift_hz = l->shift_hz_err = NAN;
-        l->fwhm_hz = l->fwhm_hz_err = l->area = l->area_err = NAN;
-        return;
-    }
-    l->center_hz = num(o, "center_hz");
-    l->center_hz_err = num(o, "center_hz_err");
-    l->shift_hz = num(o, "shift_hz");
-    l->shift_hz_err = num(o, "shift_hz_err");
-    l->fwhm_hz = num(o, "fwhm_hz");
-    l->fwhm_hz_err = num(o, "fwhm_hz_err");
-    l->area = num(o, "area");
-    l->area_err = num(o, "area_err");
-}
-
 static char *dup_text(const char *t)
 {
     if (!t)
@@ -79,58 +61,6 @@ static char *dup_text(const char *t)
     if (d)
         memcpy(d, t, n);
     return d;
-}
-
-/* One entry of a shard's JSON. Returns 0, or -1 (message in why). */
-static int read_entry(const json_t *o, cs_series_entry *e, const char **why)
-{
-    memset(e, 0, sizeof *e);
-    const json_t *ji = json_object_get(o, "index");
-    const char *file = str(o, "file"), *status = str(o, "status");
-    if (!json_is_object(o) || !json_is_integer(ji) || json_integer_value(ji) < 0 || !file || !status) {
-        *why = "an entry without index, file or status (not written by 'collshift series'?)";
-        return -1;
-    }
-    e->index = (size_t)json_integer_value(ji);
-    e->line = (long)json_integer_value(json_object_get(o, "line"));
-    e->file = dup_text(file);
-    e->path = dup_text(file);
-    if (!e->file || !e->path) {
-        *why = "out of memory";
-        return -1;
-    }
-    e->status = CS_SERIES_FAILED;
-    for (int k = CS_SERIES_PENDING; k <= CS_SERIES_FAILED; k++)
-        if (strcmp(status, cs_series_status_name((cs_series_status)k)) == 0)
-            e->status = (cs_series_status)k;
-    snprintf(e->message, sizeof e->message, "%s", str(o, "message") ? str(o, "message") : "");
-    e->error_code = e->status == CS_SERIES_OK ? CS_OK : CS_EDATA;
-    const char *kind = str(o, "kind");
-    e->kind = CS_KIND_AUTO;
-    for (int k = CS_KIND_AUTO; kind && k <= CS_KIND_RECORD; k++)
-        if (strcmp(kind, cs_kind_name((cs_kind)k)) == 0)
-            e->kind = (cs_kind)k;
-    const json_t *js = json_object_get(o, "shots");
-    e->nshots = json_is_integer(js) && json_integer_value(js) > 0 ? (size_t)json_integer_value(js) : 0;
-    e->density_used_m3 = num(o, "density_m3");
-    e->density_m3 = NAN;
-    const char *src = str(o, "density_source");
-    for (int k = CS_SERIES_DENSITY_NONE; src && k <= CS_SERIES_DENSITY_META_TEMPERATURE; k++)
-        if (strcmp(src, cs_series_density_source_name((cs_series_density_source)k)) == 0)
-            e->density_source = (cs_series_density_source)k;
-    e->temperature_K = num(o, "temperature_k");
-    e->thickness_m = num(o, "thickness_m");
-    e->ref_used_hz = num(o, "reference_hz");
-    e->ref_hz = NAN;
-    e->shot = -1;
-    e->era = -1;
-    const char *era = str(o, "era");
-    for (int k = 0; k < CS_SPLIT_NERA; k++) {
-        if (era && strcmp(era, cs_split_era_name((cs_split_era)k)) == 0)
-            e->era = k;
-        read_line(json_object_get(o, cs_split_era_name((cs_split_era)k)), &e->era_line[k]);
-    }
-    return 0;
 }
 
 /* A shard's JSON as a cs_series. Returns 0, or prints a message and returns CLI_EXIT_DATA. */
@@ -143,6 +73,13 @@ static int read_shard(const char *path, const json_t *root, cs_series **out)
         !json_is_integer(jt) || json_integer_value(jt) < 0) {
         cli_errorf("'%s': not the JSON of 'collshift series' (no 'run' object with a fingerprint, or no "
                    "'entries')", path);
+        return CLI_EXIT_DATA;
+    }
+    const json_t *jp = json_object_get(run, "entries_pending");
+    if (json_is_false(json_object_get(run, "complete")) || (json_is_integer(jp) && json_integer_value(jp) > 0)) {
+        cli_errorf("'%s': the run was interrupted (%lld entries not analysed); finish it with the same "
+                   "'collshift series' command and --resume before merging", path,
+                   json_is_integer(jp) ? (long long)json_integer_value(jp) : -1LL);
         return CLI_EXIT_DATA;
     }
     cs_series *s = calloc(1, sizeof *s);
@@ -160,8 +97,12 @@ static int read_shard(const char *path, const json_t *root, cs_series **out)
     }
     for (size_t i = 0; i < n; i++) {
         const char *why = NULL;
-        int bad = read_entry(json_array_get(ents, i), &s->e[i], &why);
+        int bad = series_entry_from_json(json_array_get(ents, i), &s->e[i], &why);
         s->n = i + 1;
+        if (!bad && s->e[i].status == CS_SERIES_PENDING) {
+            bad = 1;
+            why = "not analysed (an interrupted run: finish it with --resume before merging)";
+        }
         if (bad) {
             cli_errorf("'%s': entry %zu: %s", path, i + 1, why);
             cs_series_free(s);

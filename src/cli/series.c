@@ -8,13 +8,14 @@
 
 #include <errno.h>
 #include <math.h>
+#include <signal.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
 
 const char *const cmd_series_usage[] = {
     "usage: collshift series MANIFEST [--line NAME] [--threads N] [--json FILE] [--table FILE]\n"
-    "                        [--theory-table FILE] [--shard K/N] [options]\n"
+    "                        [--theory-table FILE] [--shard K/N] [--resume] [options]\n"
     "\n"
     "Analyses every file of a measurement campaign and fits straight lines against density: the\n"
     "centre (the shift, when every file has a reference frequency) and the FWHM of each era, by\n"
@@ -80,23 +81,62 @@ const char *const cmd_series_usage[] = {
     "                        merged table, regressions and theory equal those of one run over the\n"
     "                        whole manifest. The JSON's 'run' object holds a fingerprint of the\n"
     "                        manifest's bytes and of the options that change results (all but\n"
-    "                        --threads, --shard and the outputs); merge refuses shards whose\n"
-    "                        fingerprints differ. A shard's own summary and regressions cover\n"
-    "                        its entries only.\n"
+    "                        --threads, --shard, the outputs and the journal options); merge\n"
+    "                        refuses shards whose fingerprints differ. A shard's own summary\n"
+    "                        and regressions cover its entries only.\n"
+    "\n",
+    "Interruptions (nothing finished is lost):\n"
+    "  --journal FILE        keep each finished entry's result in FILE, written and flushed to\n"
+    "                        disk as soon as the entry is done (default: the first of --json,\n"
+    "                        --table, --theory-table that names a file, plus '.journal'; none\n"
+    "                        when no output names a file). Its first line holds the run's\n"
+    "                        fingerprint; each further line one entry as in the JSON's 'entries'.\n"
+    "                        The journal is removed when every entry was measured and the outputs\n"
+    "                        were written, and kept otherwise.\n"
+    "  --resume              continue an interrupted run: entries in the journal keep their\n"
+    "                        results, the others are analysed, and the outputs equal those of\n"
+    "                        one uninterrupted run (the CSV tables byte for byte). The journal\n"
+    "                        must come from the same manifest bytes and result-changing options\n"
+    "                        (the fingerprint; --threads may differ), else it is refused. A last\n"
+    "                        line cut short (a killed process) is ignored: that entry is redone.\n"
+    "                        Without a journal the run starts from the beginning.\n"
+    "  --retry-failed        with --resume: analyse again the entries the journal has as failed\n"
+    "                        or partial (e.g. after replacing a bad file)\n"
+    "SIGINT (Ctrl-C) or SIGTERM (e.g. a batch system's time limit) stops the run: no new entry\n"
+    "starts, the entries being analysed finish and are journaled, the outputs are written for the\n"
+    "finished entries with the others marked 'pending' (JSON: run.complete false), and the command\n"
+    "says how to resume. The same signal again stops at once (the journal keeps every finished\n"
+    "entry).\n"
     "\n",
     CLI_LOAD_OPTIONS_HELP,
     "\n"
     "Conventions: " CS_THEORY_CONVENTIONS ".\n"
     "Exit codes: 0 every entry measured; 1 some entry failed or was only partly measured (it is\n"
-    "marked, the others are reported and fitted); 2 usage; 3 the manifest cannot be used.\n",
+    "marked, the others are reported and fitted); 2 usage; 3 the manifest cannot be used, or the\n"
+    "journal cannot be written or belongs to another run; 130 stopped by SIGINT, 143 stopped by\n"
+    "SIGTERM (outputs hold the finished entries; continue with --resume).\n",
     NULL,
 };
 
 enum {
     O_LINE = 1, O_THICK, O_ELEMENT, O_THREADS, O_MODEL, O_BASELINE, O_REF, O_GATE, O_BURST_MODEL,
     O_TAIL_MODEL, O_ORIGIN, O_INFLATE, O_JSON, O_TABLE, O_QUIET, O_SHARD, O_THEORY_TABLE, O_PLOT_SHIFT,
-    O_PLOT_FWHM
+    O_PLOT_FWHM, O_JOURNAL, O_RESUME, O_RETRY_FAILED
 };
+
+/* Journal and resume options (not part of series_opts: only this file uses them). */
+typedef struct resume_opts {
+    const char *journal;      /* --journal FILE, or NULL: derived from the outputs */
+    int resume;               /* --resume */
+    int retry_failed;         /* --retry-failed */
+} resume_opts;
+static resume_opts g_resume;
+
+/* 1 when an output option names a file (not absent, not standard output). */
+static int names_file(const char *path)
+{
+    return path && path[0] && strcmp(path, "-") != 0;
+}
 
 /* Append "--name[=value]\n" to the options text (the fingerprint's input). */
 static int add_option_text(char **text, size_t *len, const char *name, const char *value)
@@ -132,6 +172,9 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
         {"theory-table", required_argument, NULL, O_THEORY_TABLE},
         {"plot-shift", required_argument, NULL, O_PLOT_SHIFT},
         {"plot-fwhm", required_argument, NULL, O_PLOT_FWHM},
+        {"journal", required_argument, NULL, O_JOURNAL},
+        {"resume", no_argument, NULL, O_RESUME},
+        {"retry-failed", no_argument, NULL, O_RETRY_FAILED},
         {NULL, 0, NULL, 0},
     };
     struct option longopts[64];
@@ -146,9 +189,12 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
     if (!*opt_text)
         return CLI_EXIT_DATA;
     while (rc == 0 && (li = -1, c = getopt_long(argc, argv, ":", longopts, &li)) != -1) {
-        if (li >= 0 && c != O_THREADS && c != O_JSON && c != O_TABLE && c != O_QUIET && c != O_SHARD &&
-            c != O_THEORY_TABLE && c != O_PLOT_SHIFT && c != O_PLOT_FWHM && add_option_text(opt_text, &tlen, longopts[li].name,
-                                                   longopts[li].has_arg ? optarg : NULL)) {
+        /* the fingerprint's options: all but those that cannot change a result */
+        int neutral = c == O_THREADS || c == O_JSON || c == O_TABLE || c == O_QUIET || c == O_SHARD ||
+                      c == O_THEORY_TABLE || c == O_PLOT_SHIFT || c == O_PLOT_FWHM || c == O_JOURNAL ||
+                      c == O_RESUME || c == O_RETRY_FAILED;
+        if (li >= 0 && !neutral &&
+            add_option_text(opt_text, &tlen, longopts[li].name, longopts[li].has_arg ? optarg : NULL)) {
             cli_errorf("series: out of memory");
             return CLI_EXIT_DATA;
         }
@@ -218,6 +264,9 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
         case O_THEORY_TABLE: so->theory_table = optarg; break;
         case O_PLOT_SHIFT: so->plot_shift = optarg; break;
         case O_PLOT_FWHM: so->plot_fwhm = optarg; break;
+        case O_JOURNAL: g_resume.journal = optarg; break;
+        case O_RESUME: g_resume.resume = 1; break;
+        case O_RETRY_FAILED: g_resume.retry_failed = 1; break;
         case O_SHARD:
             if (cs_series_shard_parse(optarg, &so->shard_k, &so->shard_n, &err) != CS_OK) {
                 cli_errorf("--shard '%s': %s", optarg, err.msg);
@@ -246,6 +295,19 @@ static int parse_args(int argc, char **argv, series_opts *so, char **opt_text)
     so->manifest = argv[optind];
     if (so->theory_table && !so->line) {
         cli_errorf("series: --theory-table needs --line (the line whose estimates are compared)");
+        return CLI_EXIT_USAGE;
+    }
+    if (g_resume.retry_failed && !g_resume.resume) {
+        cli_errorf("series: --retry-failed needs --resume (it re-analyses entries of the journal)");
+        return CLI_EXIT_USAGE;
+    }
+    if (g_resume.journal && (!g_resume.journal[0] || strcmp(g_resume.journal, "-") == 0)) {
+        cli_errorf("series: --journal needs a file name (not standard output)");
+        return CLI_EXIT_USAGE;
+    }
+    if (g_resume.resume && !g_resume.journal && !names_file(so->json) && !names_file(so->table) &&
+        !names_file(so->theory_table)) {
+        cli_errorf("series: --resume needs the journal: --journal FILE, or --json/--table naming a file");
         return CLI_EXIT_USAGE;
     }
     if (!so->p.element && so->line)
@@ -294,6 +356,7 @@ int cmd_series(int argc, char **argv)
 {
     series_opts so;
     memset(&so, 0, sizeof so);
+    memset(&g_resume, 0, sizeof g_resume);
     cs_series_params_default(&so.p);
     so.thickness_m = NAN;
     so.command = "series";
@@ -332,23 +395,66 @@ static int run_series(series_opts *so_)
         cs_series_free(s);
         return CLI_EXIT_USAGE;
     }
+    series_journal j = {NULL, -1, 0, 0, 0, 0};
+    if ((rc = series_journal_open(&j, &so, s, g_resume.journal, g_resume.resume, g_resume.retry_failed)) != 0) {
+        series_journal_close(&j);
+        free(j.path);
+        cs_series_free(s);
+        return rc;
+    }
+    series_journal_test_hook(&j);
+    so.p.keep_finished = 1;   /* entries taken from the journal (all others are pending) */
+    so.p.on_entry = series_journal_entry;
+    so.p.entry_ctx = &j;
+    so.p.stop = series_stop_requested;
     if (isatty(STDERR_FILENO))
         so.p.progress = progress;
     if (so.p.threads > 1 && !cs_series_parallel_available())
         cli_errorf("series: this build has no OpenMP; --threads %d runs one entry at a time", so.p.threads);
     cs_error_clear(&err);
+    series_signals_catch();
     int run = cs_series_run(s, &so.p, &err);
+    series_signals_release();
+    series_journal_close(&j);
+    int sig = series_signal_received();
+    size_t pending = cs_series_count(s, CS_SERIES_PENDING);
     if (run != CS_OK && run != CS_ENOCONV) {
         cli_report(&err);
         cs_series_free(s);
+        free(j.path);
         return run == CS_EINVAL ? CLI_EXIT_USAGE : CLI_EXIT_DATA;
     }
     for (size_t i = 0; i < s->n; i++)
-        if (s->e[i].status != CS_SERIES_OK)
+        if (s->e[i].status != CS_SERIES_OK && s->e[i].status != CS_SERIES_PENDING)
             cli_errorf("'%s': line %ld: %s: %s", s->manifest, s->e[i].line,
                        cs_series_status_name(s->e[i].status), s->e[i].message);
     rc = series_output(s, &so);
+    size_t nbad = s->n - pending - cs_series_count(s, CS_SERIES_OK), ntot = s->n;
     cs_series_free(s);
+    if (pending) {
+        cli_errorf("series: stopped by %s: %zu of %zu entries finished, %zu not analysed; the outputs hold "
+                   "the finished ones (the others are marked pending)",
+                   sig == SIGTERM ? "SIGTERM" : sig == SIGINT ? "SIGINT" : "a stop request", ntot - pending,
+                   ntot, pending);
+        if (j.path && !j.failed)
+            cli_errorf("series: to continue, run the same command with --resume (journal '%s')", j.path);
+        else
+            cli_errorf("series: no journal was kept (give --journal FILE or an output file to be able to "
+                       "resume)");
+        free(j.path);
+        return sig ? 128 + sig : CLI_EXIT_ANALYSIS;
+    }
+    if (j.path && !j.failed) {
+        if (rc == 0 && nbad == 0)
+            (void)unlink(j.path);   /* complete, written: nothing to resume */
+        else if (rc)
+            cli_errorf("series: the journal '%s' keeps the results: --resume writes the outputs again "
+                       "without analysing", j.path);
+        else
+            cli_errorf("series: the journal '%s' is kept: after replacing the failed files, "
+                       "--resume --retry-failed analyses only them again", j.path);
+    }
+    free(j.path);
     if (rc)
         return rc;
     return run == CS_OK ? CLI_EXIT_OK : CLI_EXIT_ANALYSIS;

@@ -115,7 +115,7 @@ static json_t *line_json(const cs_series_line *l)
     return o;
 }
 
-static json_t *entry_json(const cs_series_entry *e)
+json_t *series_entry_json(const cs_series_entry *e)
 {
     json_t *o = json_object();
     json_object_set_new(o, "index", json_integer((json_int_t)e->index));
@@ -123,7 +123,8 @@ static json_t *entry_json(const cs_series_entry *e)
     json_object_set_new(o, "file", json_string(e->file));
     json_object_set_new(o, "status", json_string(cs_series_status_name(e->status)));
     json_object_set_new(o, "message", json_string(e->message));
-    json_object_set_new(o, "kind", json_string(e->status == CS_SERIES_FAILED && e->kind == CS_KIND_AUTO
+    json_object_set_new(o, "kind", json_string((e->status == CS_SERIES_FAILED || e->status == CS_SERIES_PENDING) &&
+                                                       e->kind == CS_KIND_AUTO
                                                    ? "unknown" : cs_kind_name(e->kind)));
     json_object_set_new(o, "shots", json_integer((json_int_t)e->nshots));
     json_object_set_new(o, "density_cm3", cli_jnum(e->density_used_m3 * 1e-6));
@@ -206,23 +207,21 @@ static void print_summary(const cs_series *s, const series_opts *so, const order
                           const cs_series_regression *reg, const cs_theory_estimates *est,
                           const cs_series_compare *cmp, size_t ncmp)
 {
-    size_t nok = 0, nfail = 0;
-    for (size_t i = 0; i < s->n; i++) {
-        nok += s->e[i].status == CS_SERIES_OK;
-        nfail += s->e[i].status == CS_SERIES_FAILED;
-    }
-    printf("%s: %zu entries: %zu ok, %zu partial, %zu failed (spectra: model %s; %d thread%s)\n",
-           s->manifest, s->n, nok, s->n - nok - nfail, nfail, so->p.model, so->p.threads,
-           so->p.threads == 1 ? "" : "s");
+    size_t nok = cs_series_count(s, CS_SERIES_OK), nfail = cs_series_count(s, CS_SERIES_FAILED);
+    size_t npart = cs_series_count(s, CS_SERIES_PARTIAL), npend = cs_series_count(s, CS_SERIES_PENDING);
+    printf("%s: %zu entries: %zu ok, %zu partial, %zu failed", s->manifest, s->n, nok, npart, nfail);
+    if (npend)
+        printf(", %zu not analysed (interrupted: incomplete)", npend);
+    printf(" (spectra: model %s; %d thread%s)\n", so->p.model, so->p.threads, so->p.threads == 1 ? "" : "s");
     printf("\nPer density and era (shift = centre minus reference):\n");
     printf("  %-18s %-5s %-24s %-24s %-24s %s\n", "density", "era", "centre", "shift", "FWHM", "file");
     char b1[64], b2[64], b3[64], b4[64];
     for (size_t j = 0; j < s->n; j++) {
         const cs_series_entry *e = &s->e[ord[j].i];
         cs_quantity_format(e->density_used_m3, CS_DIM_DENSITY, 4, b1, sizeof b1);
-        if (e->status == CS_SERIES_FAILED) {
-            printf("  %-18s %-5s %-74s %s  [failed, skipped]\n", isfinite(e->density_used_m3) ? b1 : "-",
-                   "-", "-", e->file);
+        if (e->status == CS_SERIES_FAILED || e->status == CS_SERIES_PENDING) {
+            printf("  %-18s %-5s %-74s %s  [%s]\n", isfinite(e->density_used_m3) ? b1 : "-", "-", "-", e->file,
+                   e->status == CS_SERIES_FAILED ? "failed, skipped" : "not analysed (interrupted)");
             continue;
         }
         for (int k = 0; k < CS_SPLIT_NERA; k++) {
@@ -281,7 +280,8 @@ static char *make_table(const cs_series *s, const order_item *ord)
             if (isfinite(e->density_used_m3))
                 sb_printf(&t, "%.10g", e->density_used_m3 * 1e-6);
             sb_printf(&t, ",%s,%s,%ld,%s", cs_split_era_name((cs_split_era)k), e->file, e->line,
-                      l->ok ? "ok" : e->status == CS_SERIES_FAILED ? "failed" : "not measured");
+                      l->ok ? "ok" : e->status == CS_SERIES_FAILED ? "failed"
+                               : e->status == CS_SERIES_PENDING ? "pending" : "not measured");
             sb_num(&t, l->center_hz); sb_num(&t, l->center_hz_err);
             sb_num(&t, l->shift_hz); sb_num(&t, l->shift_hz_err);
             sb_num(&t, l->fwhm_hz); sb_num(&t, l->fwhm_hz_err);
@@ -329,6 +329,9 @@ static json_t *run_json(const cs_series *s, const series_opts *so)
     json_object_set_new(o, "fingerprint", json_string(so->fingerprint));
     json_object_set_new(o, "options", json_string(so->options ? so->options : ""));
     json_object_set_new(o, "entries_total", json_integer((json_int_t)s->total));
+    size_t npend = cs_series_count(s, CS_SERIES_PENDING);
+    json_object_set_new(o, "complete", json_boolean(npend == 0));   /* false: interrupted */
+    json_object_set_new(o, "entries_pending", json_integer((json_int_t)npend));
     if (so->shard_n) {
         char b[64];
         snprintf(b, sizeof b, "%zu/%zu", so->shard_k, so->shard_n);
@@ -539,7 +542,7 @@ int series_output(const cs_series *s, const series_opts *so)
         json_object_set_new(root, "run", run_json(s, so));
         json_t *je = json_array();
         for (size_t i = 0; i < s->n; i++)
-            json_array_append_new(je, entry_json(&s->e[i]));
+            json_array_append_new(je, series_entry_json(&s->e[i]));
         json_object_set_new(root, "entries", je);
         json_t *jr = json_array();
         int inflated = 0;
