@@ -405,6 +405,82 @@ static int load_data(cs_fit_workspace *w, const double *x, const double *y, cons
     return CS_OK;
 }
 
+/* A fit that runs into a bound can crawl along it: the bound transform flattens the cost there,
+ * and the solver may end at its iteration limit with the parameter at the bound and the others
+ * still moving. When a fit did not converge and some free parameters sit at a bound (the
+ * criterion of fit_covar.c), they are pinned there (held fixed at the bound) and the others are
+ * solved again from the point reached. If that converges, the fit has converged with those
+ * parameters at their bounds (they are flagged at_bound and get NaN errors afterwards, the
+ * others' errors being conditional on them); if not, the first outcome stands. The free set of
+ * the workspace is restored either way. Returns CS_OK, CS_ENOMEM, or an error of setup_params. */
+static int resolve_at_bounds(cs_fit_workspace *ws, cs_model *m, const cs_fit_parameters *par, double *p,
+                             fit_outcome *o, cs_error *err)
+{
+    const size_t np = ws->np;
+    cs_fit_impl_check_polish(ws, p, o);
+    cs_fit_result tmp;
+    memset(&tmp, 0, sizeof tmp);
+    tmp.value = p;
+    tmp.at_bound = calloc(np, sizeof *tmp.at_bound);
+    int *was_fixed = malloc(np * sizeof *was_fixed);
+    double *was_value = malloc(np * sizeof *was_value), *pkeep = malloc(np * sizeof *pkeep);
+    int rc = CS_OK;
+    if (!tmp.at_bound || !was_fixed || !was_value || !pkeep) {
+        rc = CS_ENOMEM;
+        goto done;
+    }
+    cs_fit_impl_flag_bounds(ws, &tmp);
+    size_t nat = 0;
+    for (size_t i = 0; i < np; i++)
+        nat += tmp.at_bound[i] != 0;
+    if (nat == 0 || nat >= ws->nfree)
+        goto done;
+    memcpy(pkeep, p, np * sizeof *p);
+    for (size_t i = 0; i < np; i++) {
+        was_fixed[i] = m->par[i].fixed;
+        was_value[i] = m->par[i].value;
+        if (tmp.at_bound[i]) {
+            double lo = isnan(m->par[i].lo) ? -INFINITY : m->par[i].lo;
+            double hi = isnan(m->par[i].hi) ? INFINITY : m->par[i].hi;
+            p[i] = tmp.at_bound[i] == 1 ? lo : hi;
+            m->par[i].value = p[i];
+            m->par[i].fixed = 1;
+        }
+    }
+    fit_outcome o2;
+    rc = setup_params(ws, m, p, err);
+    if (rc == CS_OK)
+        rc = cs_fit_impl_solve(ws, par, p, &o2);
+    if (rc == CS_OK)
+        cs_fit_impl_check_polish(ws, p, &o2);
+    for (size_t i = 0; i < np; i++) {
+        m->par[i].fixed = was_fixed[i];
+        m->par[i].value = was_value[i];
+    }
+    int better = rc == CS_OK && o2.status == CS_FIT_CONVERGED;
+    if (better) {
+        o->status = o2.status;
+        o->stop = o2.stop;
+        o->cost = o2.cost;
+        o->niter += o2.niter;
+        o->nfev += o2.nfev;
+        o->njev += o2.njev;
+    } else {
+        memcpy(p, pkeep, np * sizeof *p);
+    }
+    /* the free set of the fit as the user gave it (the pinned parameters free again, at their
+       bounds) */
+    int rs = setup_params(ws, m, p, err);
+    if (rc == CS_OK)
+        rc = rs;
+done:
+    free(tmp.at_bound);
+    free(was_fixed);
+    free(was_value);
+    free(pkeep);
+    return rc;
+}
+
 int cs_fit_run(cs_fit_workspace *ws, cs_model *m, const double *x, const double *y,
                const double *sigma, const unsigned char *mask, size_t n,
                const cs_fit_parameters *par, cs_fit_result **out, cs_error *err)
@@ -469,6 +545,11 @@ int cs_fit_run(cs_fit_workspace *ws, cs_model *m, const double *x, const double 
         goto nomem;
     if (par->multistart > 0 && (rc = cs_fit_impl_multistart(ws, par, p0, p, &o)) != CS_OK)
         goto nomem;
+    if (o.status == CS_FIT_NOT_CONVERGED && (rc = resolve_at_bounds(ws, m, par, p, &o, err)) != CS_OK) {
+        if (rc == CS_ENOMEM)
+            goto nomem;
+        goto done;
+    }
 
     int ok = cs_fit_impl_eval(ws, p);
     if (o.polished) { /* keep the final Gauss-Newton step only if the cost did not rise */

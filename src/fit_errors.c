@@ -184,6 +184,10 @@ int cs_fit_ftest(const cs_fit_result *simple, const cs_fit_result *full, double 
         return CS_EINVAL;
     if (!isfinite(simple->chi2) || !isfinite(full->chi2) || !(full->chi2 > 0.0))
         return CS_EINVAL;
+    /* a fit that stopped short of its minimum has a chi2 that means nothing for the test */
+    if (simple->status == CS_FIT_NOT_CONVERGED || simple->status == CS_FIT_MODEL_NAN ||
+        full->status == CS_FIT_NOT_CONVERGED || full->status == CS_FIT_MODEL_NAN)
+        return CS_EINVAL;
     double d1 = (double)(full->nfree - simple->nfree), d2 = (double)full->dof;
     double f = ((simple->chi2 - full->chi2) / d1) / (full->chi2 / d2);
     *F = f;

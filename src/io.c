@@ -66,7 +66,8 @@ static long find_index(const cs_meta *m, const char *key)
     return -1;
 }
 
-/* Slot for key: the existing entry (released, key kept) or a new one at the end. */
+/* Slot for key: the existing entry (released, key kept) or a new one at the end; NULL when out
+ * of memory or when m already holds CS_META_MAX_KEYS keys. */
 static cs_meta_entry *slot_for(cs_meta *m, const char *key)
 {
     long i = find_index(m, key);
@@ -77,6 +78,8 @@ static cs_meta_entry *slot_for(cs_meta *m, const char *key)
         e->text = e->unit = NULL;
         return e;
     }
+    if (m->n >= CS_META_MAX_KEYS)
+        return NULL;
     if (m->n == m->cap) {
         size_t cap = m->cap ? 2 * m->cap : 8;
         cs_meta_entry *ne = realloc(m->e, cap * sizeof *ne);
@@ -159,6 +162,11 @@ int cs_meta_parse_line(cs_meta *m, const char *content, const char *file, long l
                                 "metadata key has character '%c': use letters, digits, '_', '-', '.'", c);
         }
     }
+    if (m->n >= CS_META_MAX_KEYS && find_index(m, key) < 0) {
+        free(key);
+        return cs_error_set(err, CS_ERANGE, file, line, -1,
+                            "more than %d different metadata keys", CS_META_MAX_KEYS);
+    }
     cs_meta_entry *e = slot_for(m, key);
     free(key);
     if (!e)
@@ -174,6 +182,8 @@ int cs_meta_parse_line(cs_meta *m, const char *content, const char *file, long l
 
 int cs_meta_set_si(cs_meta *m, const char *key, double si, cs_dim dim)
 {
+    if (m->n >= CS_META_MAX_KEYS && find_index(m, key) < 0)
+        return CS_ERANGE;
     cs_meta_entry *e = slot_for(m, key);
     if (!e)
         return CS_ENOMEM;
@@ -192,6 +202,8 @@ int cs_meta_set_si(cs_meta *m, const char *key, double si, cs_dim dim)
 
 int cs_meta_set_text(cs_meta *m, const char *key, const char *text)
 {
+    if (m->n >= CS_META_MAX_KEYS && find_index(m, key) < 0)
+        return CS_ERANGE;
     cs_meta_entry *e = slot_for(m, key);
     if (!e)
         return CS_ENOMEM;

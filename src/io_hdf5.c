@@ -159,6 +159,16 @@ typedef struct h5ctx {
     cs_loaded *out;
 } h5ctx;
 
+/* The error of io_hdf5_gather_attrs for dataset dname: too many attributes, or memory. */
+static int attrs_failed(int rc, const char *path, const char *dname, cs_error *err)
+{
+    if (rc == CS_ERANGE)
+        return cs_error_set(err, CS_ERANGE, path, -1, -1,
+                            "dataset '%s': more than %d attributes on it and its groups", dname,
+                            CS_META_MAX_KEYS);
+    return cs_error_set(err, CS_ENOMEM, path, -1, -1, "out of memory");
+}
+
 static int load_records(h5ctx *c, const char *dname)
 {
     const cs_load_options *o = c->o;
@@ -178,7 +188,7 @@ static int load_records(h5ctx *c, const char *dname)
     if (rc != CS_OK)
         goto done;
     if ((rc = io_hdf5_gather_attrs(c->file, dname, &at)) != CS_OK) {
-        rc = cs_error_set(err, CS_ENOMEM, path, -1, -1, "out of memory");
+        rc = attrs_failed(rc, path, dname, err);
         goto done;
     }
     /* layout: shots x samples, complex or not */
@@ -413,9 +423,16 @@ static int load_spectrum(h5ctx *c, const char *yname, const char *xname)
                           "the %zu needed", yname, n, min_points);
         goto done;
     }
-    if (io_hdf5_gather_attrs(c->file, yname, &at) != CS_OK ||
-        (xname && io_hdf5_gather_attrs(c->file, xname, &ax) != CS_OK))
-        goto nomem;
+    const char *attrs_of = yname;
+    rc = io_hdf5_gather_attrs(c->file, yname, &at);
+    if (rc == CS_OK && xname) {
+        attrs_of = xname;
+        rc = io_hdf5_gather_attrs(c->file, xname, &ax);
+    }
+    if (rc != CS_OK) {
+        rc = attrs_failed(rc, path, attrs_of, err);
+        goto done;
+    }
     /* the axis unit: option, else the x dataset's attribute, else Hz */
     const char *unit = o->x_unit && *o->x_unit ? o->x_unit : NULL;
     const char *unit_from = "";

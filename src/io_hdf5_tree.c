@@ -215,10 +215,17 @@ static char *attr_string(hid_t attr, hid_t ftype)
     return out;
 }
 
+/* Most attributes gathered for one dataset (its own and its groups'): as many as the metadata of
+ * a spectrum or record may hold (CS_META_MAX_KEYS), so a file with a flood of attributes is
+ * refused with a message instead of filling memory. */
+#define IO_HDF5_MAX_ATTRS ((size_t)CS_META_MAX_KEYS)
+
 static herr_t attr_visit(hid_t loc, const char *name, const H5A_info_t *info, void *data)
 {
     (void)info;
     h5attrs *s = data;
+    if (s->n >= IO_HDF5_MAX_ATTRS)
+        return -1; /* stops the iteration; io_hdf5_gather_attrs reports it */
     hid_t attr = H5Aopen(loc, name, H5P_DEFAULT);
     if (attr < 0)
         return 0;
@@ -324,6 +331,8 @@ int io_hdf5_gather_attrs(hid_t file, const char *objpath, h5attrs *s)
         H5Oclose(obj);
         if (s->oom)
             return CS_ENOMEM;
+        if (s->n >= IO_HDF5_MAX_ATTRS)
+            return CS_ERANGE;
     }
     return CS_OK;
 }

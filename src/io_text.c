@@ -9,6 +9,8 @@
  *   - Blank lines anywhere. Lines whose first non-blank character is '#' are comments, anywhere.
  *     A comment holding '=' is a metadata line "# key = value [unit]" (cs_meta_parse_line); one
  *     whose key is not a valid metadata key stays a plain comment (and a note says so once).
+ *     A key given again replaces its earlier value (the last one wins; a note says so once);
+ *     more than CS_META_MAX_KEYS (10000) different keys is an error.
  *   - One delimiter for the whole file: ',', tab, ';' or runs of blanks. It is chosen from the
  *     first line that is not a comment (header or data): a tab if there is one, else ';', else
  *     ',', else blanks. One exception: when splitting at ',' (or tab or ';') leaves a field with
@@ -373,9 +375,13 @@ static int comment(txt *c, char *content, long line)
         return CS_OK;
     cs_error e;
     cs_error_clear(&e);
+    size_t nkeys = c->meta.n;
     int rc = cs_meta_parse_line(&c->meta, content, c->path, line, &e);
     if (rc == CS_ENOMEM)
         return io_text_fail(c, CS_ENOMEM, line, "out of memory");
+    if (rc == CS_ERANGE)
+        return io_text_fail(c, CS_EFORMAT, line, "%s", e.msg);
+    int repeated = rc == CS_OK && c->meta.n == nkeys;
     if (rc != CS_OK) {
         if (!c->meta_note_done)
             cs_loaded_note(c->out, "line %ld: comment with '=' not read as metadata (%s)", line,
@@ -390,6 +396,12 @@ static int comment(txt *c, char *content, long line)
     while (ke > kb && is_blank(ke[-1]))
         ke--;
     size_t kn = (size_t)(ke - kb);
+    if (repeated && !c->meta_repeat_note_done) {
+        /* a key given again: the last value wins (documented at the top); said once per file */
+        cs_loaded_note(c->out, "line %ld: metadata '%.*s' given again: the last value wins", line,
+                       (int)(kn > 64 ? 64 : kn), kb);
+        c->meta_repeat_note_done = 1;
+    }
 #define KEY_IS(s) (kn == sizeof(s) - 1 && strncasecmp(kb, s, kn) == 0)
     if (KEY_IS("kind")) {
         long ml = line;

@@ -55,6 +55,7 @@ typedef struct txt {
     double tscale, toffset;
     const cs_unit *tunit;
     int meta_note_done;
+    int meta_repeat_note_done;     /* the note about a repeated metadata key was given */
     cs_meta meta;
 
     /* data */

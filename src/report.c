@@ -51,8 +51,8 @@ char *cs_format_value_err(double value, double err, cs_dim dim, char *buf, size_
     double k;
     const char *sym = base_symbol(dim, &prefixable, &k);
     const char *sep = *sym ? " " : "";
-    if (!isfinite(value)) {
-        snprintf(buf, n, "%s%s%s", isnan(value) ? "nan" : (value > 0 ? "inf" : "-inf"), sep, sym);
+    if (!isfinite(value)) { /* never "nan" or "inf" in an output: say what it is */
+        snprintf(buf, n, "undefined");
         return buf;
     }
     value *= k;
@@ -77,7 +77,7 @@ char *cs_format_value_err(double value, double err, cs_dim dim, char *buf, size_
     else
         snprintf(tail, sizeof tail, "%s%s%s", sep, prefix, sym);
     if (!(isfinite(e) && e > 0)) {
-        snprintf(buf, n, "%.6g%s (no error)", v, tail);
+        snprintf(buf, n, "%.6g%s (%s)", v, tail, isnan(err) || isinf(err) ? "error undefined" : "no error");
         return buf;
     }
     double es = e * scale;

@@ -7,6 +7,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 #include <sys/stat.h>
 
 #include <jansson.h>
@@ -209,6 +210,26 @@ int cs_report_text(cs_report *r, const char *fmt, ...)
     return CS_OK;
 }
 
+/* A cell or field holding only a printf'd non-finite number ("nan", "-nan", "inf", "-inf",
+ * any case, optionally followed by a unit) stands for a number that could not be computed: it is
+ * stored as "undefined", so the words never reach a report. */
+static const char *defined_text(const char *t)
+{
+    const char *p = t;
+    if (*p == '-' || *p == '+')
+        p++;
+    size_t k = 0;
+    if (strncasecmp(p, "nan", 3) == 0)
+        k = 3;
+    else if (strncasecmp(p, "infinity", 8) == 0)
+        k = 8;
+    else if (strncasecmp(p, "inf", 3) == 0)
+        k = 3;
+    if (k == 0 || (p[k] != '\0' && p[k] != ' '))
+        return t;
+    return "undefined";
+}
+
 int cs_report_field(cs_report *r, const char *name, const char *text)
 {
     if (!r || !name || !text)
@@ -217,7 +238,7 @@ int cs_report_field(cs_report *r, const char *name, const char *text)
     if (!it)
         return CS_ENOMEM;
     it->name = dupstr(name);
-    it->text = dupstr(text);
+    it->text = dupstr(defined_text(text));
     return it->name && it->text ? CS_OK : drop_last(r);
 }
 
@@ -270,7 +291,7 @@ int cs_report_row(cs_report *r, const char *const *cells)
     it->cells = c;
     char **row = c + it->ncol * (it->nrow + 1);
     for (size_t j = 0; j < it->ncol; j++) {
-        row[j] = dupstr(cells[j]);
+        row[j] = dupstr(defined_text(cells[j]));
         if (!row[j]) {
             for (size_t k = 0; k < j; k++)
                 free(row[k]);

@@ -1025,6 +1025,76 @@ START_TEST(test_long_line)
 }
 END_TEST
 
+/* A metadata key given 100000 times: one entry, the last value wins, a note names the key
+ * (io.h: cs_meta_parse_line; issue 9, section 5: repeated keys are defined and bounded). */
+START_TEST(test_repeated_key)
+{
+    enum { K = 100000 };
+    size_t cap = (size_t)K * 32 + 64, len = 0;
+    char *text = malloc(cap);
+    ck_assert_ptr_nonnull(text);
+    for (int k = 1; k <= K; k++)
+        len += (size_t)snprintf(text + len, cap - len, "# Density = %d cm^-3\n", k);
+    snprintf(text + len, cap - len, "1,2\n2,3\n3,4\n");
+    cs_loaded L;
+    cs_error err;
+    int rc = load(text, NULL, &L, &err);
+    ck_assert_msg(rc == CS_OK, "%s", err.msg);
+    ck_assert_uint_eq(L.spectrum->meta.n, 1);
+    const cs_meta_entry *e = cs_meta_find(&L.spectrum->meta, "density"); /* keys ignore case */
+    ck_assert_ptr_nonnull(e);
+    ck_assert(e->value == (double)K); /* the last line's value */
+    ck_assert_int_eq(e->line, K);
+    ck_assert_msg(strstr(L.notes, "metadata 'Density' given again: the last value wins") != NULL, "notes: %s", L.notes);
+    ck_assert_msg(strstr(L.notes, "line 2:") != NULL, "the first repetition is named: %s", L.notes);
+    cs_loaded_release(&L);
+    free(text);
+}
+END_TEST
+
+/* More than 10000 different keys: refused at the first one too many, with its line; exactly
+ * 10000 load (io.h: CS_META_MAX_KEYS). The same limit through the API. */
+START_TEST(test_too_many_keys)
+{
+    enum { K = 10001 };
+    size_t cap = (size_t)K * 32 + 64, len = 0;
+    char *text = malloc(cap);
+    ck_assert_ptr_nonnull(text);
+    for (int k = 0; k < K; k++)
+        len += (size_t)snprintf(text + len, cap - len, "# key%d = %d\n", k, k);
+    snprintf(text + len, cap - len, "1,2\n2,3\n3,4\n");
+    cs_loaded L;
+    cs_error err;
+    ck_assert_int_eq(load(text, NULL, &L, &err), CS_EFORMAT);
+    ck_assert_int_eq(err.line, K);
+    ck_assert_msg(strstr(err.msg, "more than 10000 different metadata keys") != NULL, "%s", err.msg);
+    /* drop the last key line: 10000 keys are fine */
+    char *last = strstr(text, "# key10000 =");
+    ck_assert_ptr_nonnull(last);
+    memcpy(last, "#               ", 16);
+    int rc = load(text, NULL, &L, &err);
+    ck_assert_msg(rc == CS_OK, "%s", err.msg);
+    ck_assert_uint_eq(L.spectrum->meta.n, CS_META_MAX_KEYS);
+    cs_loaded_release(&L);
+    free(text);
+
+    cs_meta m;
+    cs_meta_init(&m);
+    char line[64];
+    for (int k = 0; k < CS_META_MAX_KEYS; k++) {
+        snprintf(line, sizeof line, "k%d = %d", k, k);
+        ck_assert_int_eq(cs_meta_parse_line(&m, line, NULL, k + 1, NULL), CS_OK);
+    }
+    ck_assert_int_eq(cs_meta_parse_line(&m, "one_more = 1", "f.csv", 7, &err), CS_ERANGE);
+    ck_assert_int_eq(err.line, 7);
+    ck_assert_int_eq(cs_meta_parse_line(&m, "k5 = 6", NULL, 8, NULL), CS_OK); /* replacing is fine */
+    ck_assert_int_eq(cs_meta_set_text(&m, "another", "x"), CS_ERANGE);
+    ck_assert_int_eq(cs_meta_set_si(&m, "k7", 1.0, CS_DIM_TIME), CS_OK);
+    ck_assert_uint_eq(m.n, CS_META_MAX_KEYS);
+    cs_meta_release(&m);
+}
+END_TEST
+
 /* More than one read buffer (4 MiB): lines cross chunk boundaries and must come out whole. */
 START_TEST(test_many_rows)
 {
@@ -1129,6 +1199,8 @@ static Suite *io_text_suite(void)
     tcase_add_test(tc, test_long_field);
     tcase_add_test(tc, test_long_line);
     tcase_add_test(tc, test_many_rows);
+    tcase_add_test(tc, test_repeated_key);
+    tcase_add_test(tc, test_too_many_keys);
     suite_add_tcase(s, tc);
 
     return s;

@@ -48,11 +48,87 @@ START_TEST(test_format_value_err)
 }
 END_TEST
 
+/* Numbers that could not be computed never print as "nan"/"inf" (issue 9, section 3; common
+ * practice for fail-safe outputs): the value reads "undefined", an undefined error
+ * "(error undefined)", unlike the "(no error)" of an exact (fixed) value. */
 START_TEST(test_format_nan)
 {
     char buf[64];
     cs_format_value_err(0.0 / 0.0, 1.0, CS_DIM_FREQUENCY, buf, sizeof buf);
-    ck_assert_str_eq(buf, "nan Hz");
+    ck_assert_str_eq(buf, "undefined");
+    cs_format_value_err(-1.0 / 0.0, 1.0, CS_DIM_DIMENSIONLESS, buf, sizeof buf);
+    ck_assert_str_eq(buf, "undefined");
+    cs_format_value_err(1.5e6, 0.0 / 0.0, CS_DIM_FREQUENCY, buf, sizeof buf);
+    ck_assert_str_eq(buf, "1.5 MHz (error undefined)");
+}
+END_TEST
+
+/* A report of a failed fit: an undefined value, an undefined error, a table cell printed from a
+ * NaN. Markdown and JSON must say "undefined" / null, never "nan" or "inf" (issue 9, section 3;
+ * common practice). */
+START_TEST(test_report_undefined)
+{
+    cs_report *r = cs_report_alloc("Failed fit");
+    ck_assert_ptr_nonnull(r);
+    ck_assert_int_eq(cs_report_section(r, "Fit"), CS_OK);
+    ck_assert_int_eq(cs_report_field(r, "status", "not converged"), CS_OK);
+    ck_assert_int_eq(cs_report_field(r, "chi2", "nan"), CS_OK);
+    ck_assert_int_eq(cs_report_value(r, "1.center", 1.5e6, 0.0 / 0.0, CS_DIM_FREQUENCY), CS_OK);
+    ck_assert_int_eq(cs_report_value(r, "1.fwhm", 0.0 / 0.0, 0.0 / 0.0, CS_DIM_FREQUENCY), CS_OK);
+    const char *cols[] = {"parameter", "value", "error"};
+    ck_assert_int_eq(cs_report_table(r, NULL, 3, cols), CS_OK);
+    const char *row1[] = {"1.area", "-nan", "inf"};
+    const char *row2[] = {"1.width", "nano", "infrared"}; /* words that only start alike stay */
+    ck_assert_int_eq(cs_report_row(r, row1), CS_OK);
+    ck_assert_int_eq(cs_report_row(r, row2), CS_OK);
+    char *md = cs_report_markdown(r);
+    char *js = cs_report_json(r);
+    ck_assert_ptr_nonnull(md);
+    ck_assert_ptr_nonnull(js);
+    ck_assert_msg(strstr(md, "- **1.center**: 1.5 MHz (error undefined)") != NULL, "%s", md);
+    ck_assert_msg(strstr(md, "- **1.fwhm**: undefined") != NULL, "%s", md);
+    ck_assert_msg(strstr(md, "- **chi2**: undefined") != NULL, "%s", md);
+    ck_assert_msg(strstr(md, "| 1.area | undefined | undefined |") != NULL, "%s", md);
+    ck_assert_msg(strstr(md, "| 1.width | nano | infrared |") != NULL, "%s", md);
+    const char *texts[] = {md, js};
+    for (int t = 0; t < 2; t++) {
+        const char *p = texts[t];
+        for (const char *q = p; (q = strstr(q, "nan")) != NULL; q++)
+            ck_assert_msg(q[3] == 'o', "'nan' in %s", p);
+        for (const char *q = p; (q = strstr(q, "inf")) != NULL; q++)
+            ck_assert_msg(q[3] == 'r', "'inf' in %s", p);
+    }
+    json_error_t je;
+    json_t *root = json_loads(js, 0, &je);
+    ck_assert_ptr_nonnull(root);
+    json_t *items = json_object_get(json_array_get(json_object_get(root, "sections"), 0), "items");
+    json_t *v = json_array_get(items, 2);
+    ck_assert(json_real_value(json_object_get(v, "value")) == 1.5e6);
+    ck_assert(json_is_null(json_object_get(v, "error")));
+    ck_assert(json_is_null(json_object_get(json_array_get(items, 3), "value")));
+    json_decref(root);
+    free(md);
+    free(js);
+    cs_report_free(r);
+}
+END_TEST
+
+/* An output that cannot be written (its folder is a regular file, so neither chmod nor root
+ * matter): CS_EIO naming the path, and nothing left behind (common practice for atomic writes). */
+START_TEST(test_atomic_write_fails)
+{
+    cs_error err;
+    cs_error_clear(&err);
+    const char *file = tu_write_text("plain_file", "x");
+    char path[4096];
+    snprintf(path, sizeof path, "%s/out.json", file);
+    ck_assert_int_eq(cs_write_atomic(path, "{}", 2, &err), CS_EIO);
+    ck_assert_msg(strstr(err.file, "out.json") != NULL || strstr(err.msg, "out.json") != NULL, "%s: %s", err.file,
+                  err.msg);
+    struct stat st;
+    ck_assert_int_eq(stat(file, &st), 0);
+    ck_assert(S_ISREG(st.st_mode));
+    ck_assert_int_eq((int)st.st_size, 1);
 }
 END_TEST
 
@@ -177,6 +253,8 @@ static Suite *report_suite(void)
     TCase *t = tcase_create("value_err");
     tcase_add_loop_test(t, test_format_value_err, 0, (int)(sizeof fmt_cases / sizeof fmt_cases[0]));
     tcase_add_test(t, test_format_nan);
+    tcase_add_test(t, test_report_undefined);
+    tcase_add_test(t, test_atomic_write_fails);
     suite_add_tcase(s, t);
     t = tcase_create("atomic");
     tcase_add_test(t, test_atomic_write);

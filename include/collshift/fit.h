@@ -19,7 +19,12 @@
  *     trades off exactly against others, like the areas of two identical components) has NaN
  *     error and covariances; the others keep their errors, which are then still well defined;
  *   - a parameter within 1e-6 (relative) of a bound is flagged in at_bound, its error and
- *     covariances are NaN, and the other errors are computed with it held at the bound.
+ *     covariances are NaN, and the other errors are computed with it held at the bound. (A fit
+ *     that reaches its iteration limit with parameters at bounds is solved once more with them
+ *     held there; when that converges, the status is CONVERGED and they stay flagged.)
+ * In outputs (the command line's summary, JSON and CSV) a status is a word from
+ * cs_fit_status_name, a parameter at a bound is named with "lower"/"upper", and an undefined
+ * number is JSON null, an empty CSV cell or "undefined" in text: never "nan" or "inf".
  * Derived quantities (cs_profile_derived) get NaN errors exactly when they depend on a parameter
  * whose error is NaN.
  *
@@ -160,8 +165,8 @@ int cs_fit_run(cs_fit_workspace *ws, cs_model *m, const double *x, const double 
  * F = ((chi2_s - chi2_f)/(k_f - k_s)) / (chi2_f / dof_f) and its p-value, the upper tail of the
  * F(k_f - k_s, dof_f) distribution (GSL gsl_cdf_fdist_Q; 1 when F <= 0). k = nfree.
  * Returns CS_OK or CS_EINVAL (a NULL argument, not nested by parameter count, different numbers
- * of points or weightings, dof_f 0, chi2 not finite or chi2_f <= 0); *F and *p_value are NaN
- * then. */
+ * of points or weightings, dof_f 0, chi2 not finite or chi2_f <= 0, either fit NOT_CONVERGED or
+ * MODEL_NAN: its chi2 is not a minimum); *F and *p_value are NaN then. */
 int cs_fit_ftest(const cs_fit_result *simple, const cs_fit_result *full, double *F, double *p_value);
 
 #ifdef __cplusplus

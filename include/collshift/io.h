@@ -38,11 +38,16 @@ typedef struct cs_meta {
  * "shot = 7", "note = cell B, 2nd fill") and append it. Returns CS_OK; CS_EFORMAT when there is
  * no '=' or the key is empty (then nothing is appended); CS_ENOMEM. A value whose trailing word is
  * not a known unit is kept as plain text (has_number = 0 unless the whole text is a number).
- * A key given again replaces the earlier entry (the last one wins), so repeated keys do not grow
- * memory. `file` and `line` only go into error messages. */
+ * A key given again replaces the earlier entry (the last one wins, keys compared without regard
+ * to case), so repeated keys do not grow memory. At most CS_META_MAX_KEYS different keys are
+ * kept: one more is CS_ERANGE ("more than 10000 different metadata keys"), which bounds both the
+ * memory and the time (lookups are linear) of a hostile file. `file` and `line` only go into
+ * error messages. */
+#define CS_META_MAX_KEYS 10000
 int cs_meta_parse_line(cs_meta *m, const char *content, const char *file, long line, cs_error *err);
 
-/* Append or replace key with a number already in SI units of dimension dim. */
+/* Append or replace key with a number already in SI units of dimension dim. CS_OK, CS_ENOMEM, or
+ * CS_ERANGE when a new key would exceed CS_META_MAX_KEYS (likewise cs_meta_set_text). */
 int cs_meta_set_si(cs_meta *m, const char *key, double si, cs_dim dim);
 /* Append or replace key with plain text. */
 int cs_meta_set_text(cs_meta *m, const char *key, const char *text);

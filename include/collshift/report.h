@@ -17,8 +17,11 @@ extern "C" {
  * -1234567 Hz +- 15000 Hz -> "-1.235(15) MHz". The SI prefix is chosen from the larger of |value|
  * and err (densities are shown in cm^-3 with a power of ten: "3.20(15)e+13 cm^-3").
  * dim == CS_DIM_DIMENSIONLESS or CS_DIM_UNKNOWN prints no unit (and a power of ten when needed).
- * A non-finite or non-positive err prints the value with 6 significant digits followed by
- * " (no error)"; a non-finite value prints "nan" or "inf". Returns buf. */
+ * A zero or negative err prints the value with 6 significant digits followed by " (no error)"
+ * (e.g. a fixed parameter); a NaN or infinite err (an error that could not be computed: a fit
+ * that did not converge, a singular covariance, a parameter at a bound) prints it followed by
+ * " (error undefined)". A NaN or infinite value prints "undefined": the words "nan" and "inf"
+ * never appear in an output. Returns buf. */
 char *cs_format_value_err(double value, double err, cs_dim dim, char *buf, size_t n);
 
 /* Write len bytes to path atomically: a temporary file in the same folder (same name plus
@@ -82,7 +85,9 @@ int cs_report_field(cs_report *r, const char *name, const char *text);
 int cs_report_value(cs_report *r, const char *name, double value, double err, cs_dim dim);
 /* Start a table of ncol columns with header texts; caption may be NULL. */
 int cs_report_table(cs_report *r, const char *caption, size_t ncol, const char *const *columns);
-/* Append a row of ncol cells to the table just started ('|' in a cell is escaped in Markdown). */
+/* Append a row of ncol cells to the table just started ('|' in a cell is escaped in Markdown).
+ * A cell (or a field's text) that is only a printed non-finite number ("nan", "-inf", "inf Hz",
+ * ...) is stored as "undefined". */
 int cs_report_row(cs_report *r, const char *const *cells);
 /* A link to a figure, path as it should appear (relative to the report, usually). */
 int cs_report_figure(cs_report *r, const char *caption, const char *path);

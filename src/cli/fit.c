@@ -51,7 +51,8 @@ const char *const cmd_fit_usage[] = {
     "\n"
     "Output:\n"
     "  --json FILE           results as JSON ('-' for standard output)\n"
-    "  --table FILE          one CSV row per spectrum and component (center_hz, center_hz_err, ...)\n"
+    "  --table FILE          one CSV row per spectrum and component (center_hz, center_hz_err, ...,\n"
+    "                        status, at_bound, stop_reason)\n"
     "  --residuals FILE      CSV of frequency_hz, data, model and residual per point\n"
     "  --plot FILE           figure of the spectrum with each fitted component (drawn on the\n"
     "                        baseline), the total and a residual panel; PNG, SVG or PDF from the\n"
@@ -63,6 +64,9 @@ const char *const cmd_fit_usage[] = {
     CLI_LOAD_OPTIONS_HELP,
     "\n"
     "Values are printed as value(error) in units of the last digits, e.g. -1.234(15) MHz.\n"
+    "A fit that fails says so in every output: status 'not converged', 'singular covariance' or\n"
+    "'model not finite', and parameters stuck at a bound are named (at_bound: lower/upper). Numbers\n"
+    "that could not be computed are null in JSON, empty in CSV and 'undefined' in the summary.\n"
     "Exit code 1 when a fit did not converge, 3 when a file cannot be used.\n",
     NULL,
 };
@@ -372,12 +376,67 @@ static void tprintf(table *t, const char *fmt, ...)
     }
 }
 
+/* A number cell: empty when the number is NaN or infinite (undefined: the row's status and
+ * at_bound cells say why), never "nan" or "inf". */
 static void csv_num(table *t, double v)
 {
     if (isfinite(v))
         tprintf(t, ",%.12g", v);
     else
         tprintf(t, ",");
+}
+
+/* A text cell in double quotes, quotes inside doubled (RFC 4180), so paths with commas, quotes,
+ * spaces or any UTF-8 stay one cell. */
+static void csv_text(table *t, const char *s)
+{
+    tprintf(t, "\"");
+    for (const char *q = s; *q; q++) {
+        if (*q == '"')
+            tprintf(t, "\"\"");
+        else
+            tprintf(t, "%c", *q);
+    }
+    tprintf(t, "\"");
+}
+
+/* printf-style number for the summary, or "undefined" when it could not be computed. */
+static const char *num_text(double v, const char *fmt, char *buf, size_t n)
+{
+    if (!isfinite(v))
+        return "undefined";
+    snprintf(buf, n, fmt, v);
+    return buf;
+}
+
+static const char *bound_word(int at)
+{
+    return at == 1 ? "lower" : at == 2 ? "upper" : "no";
+}
+
+/* Number of parameters at a bound. */
+static size_t count_at_bound(const cs_model *m, const cs_fit_result *r)
+{
+    size_t k = 0;
+    for (size_t i = 0; i < m->nparams; i++)
+        k += r->at_bound[i] != 0;
+    return k;
+}
+
+/* The at_bound cell of component c's row: "NAME:lower;NAME:upper" over the component's
+ * parameters and the baseline's (empty when none is at a bound). */
+static void csv_at_bound(table *t, const cs_model *m, const cs_fit_result *r, size_t c)
+{
+    const cs_model_component *mc = &m->comp[c];
+    int first = 1;
+    tprintf(t, ",");
+    for (size_t i = 0; i < m->nparams; i++) {
+        int mine = (i >= mc->first && i < mc->first + mc->type->nparams) || i >= m->base_first;
+        if (!mine || !r->at_bound[i])
+            continue;
+        tprintf(t, "%s%s:%s", first ? "" : ";", m->par[i].name, bound_word(r->at_bound[i]));
+        first = 0;
+    }
 }
 
 /* The value of component parameter `name` (short), or NaN. */
@@ -406,13 +465,28 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
                r->weighting == CS_WEIGHT_SIGMA ? "1/sigma^2" : r->weighting == CS_WEIGHT_NOISE ? "equal" :
                r->weighting == CS_WEIGHT_POISSON ? "Poisson (1/max(y,1))" : r->weighting == CS_WEIGHT_CASH ? "Poisson likelihood (Cash)" : "auto",
                r->errors_scaled ? ", errors scaled by sqrt(chi2/dof)" : ", errors not scaled");
-        printf("  status: %s (%s), %zu iterations\n", cs_fit_status_name(r->status), cs_fit_stop_name(r->stop), r->niter);
-        printf("  chi2 = %.6g, dof = %zu, chi2/dof = %.4g, AIC = %.6g, BIC = %.6g, rms residual = %.4g\n",
-               r->chi2, r->dof, r->redchi2, r->aic, r->bic, r->rms);
+        size_t nab = count_at_bound(m, r);
+        printf("  status: %s (%s), %zu iterations", cs_fit_status_name(r->status), cs_fit_stop_name(r->stop), r->niter);
+        if (nab)
+            printf(", %zu parameter%s at a bound", nab, nab == 1 ? "" : "s");
+        printf("\n");
+        if (r->status == CS_FIT_NOT_CONVERGED || r->status == CS_FIT_MODEL_NAN)
+            printf("  errors undefined: the fit did not reach a minimum (values are the last point reached)\n");
+        else if (r->status == CS_FIT_SINGULAR)
+            printf("  errors undefined for parameters the data do not determine (singular covariance)\n");
+        for (size_t k = 0; k < m->nparams; k++)
+            if (r->at_bound[k])
+                printf("  at %s bound: %s (its error is undefined; the other errors hold it there)\n",
+                       bound_word(r->at_bound[k]), m->par[k].name);
+        char n1[32], n2[32], n3[32], n4[32], n5[32];
+        printf("  chi2 = %s, dof = %zu, chi2/dof = %s, AIC = %s, BIC = %s, rms residual = %s\n",
+               num_text(r->chi2, "%.6g", n1, sizeof n1), r->dof, num_text(r->redchi2, "%.4g", n2, sizeof n2),
+               num_text(r->aic, "%.6g", n3, sizeof n3), num_text(r->bic, "%.6g", n4, sizeof n4),
+               num_text(r->rms, "%.4g", n5, sizeof n5));
     }
     json_t *o = json_object();
     json_object_set_new(o, "file", json_string(path));
-    json_object_set_new(o, "status", json_string(r->status == CS_FIT_CONVERGED ? "converged" : cs_fit_status_name(r->status)));
+    json_object_set_new(o, "status", json_string(cs_fit_status_name(r->status)));
     json_object_set_new(o, "stop_reason", json_string(cs_fit_stop_name(r->stop)));
     json_object_set_new(o, "model", json_string(m->text));
     json_object_set_new(o, "mode", json_string(trans ? "transmission" : "sum"));
@@ -425,6 +499,15 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
     json_object_set_new(o, "rms", cli_jnum(r->rms));
     json_object_set_new(o, "iterations", json_integer((json_int_t)r->niter));
     json_object_set_new(o, "errors_scaled", json_boolean(r->errors_scaled));
+    json_t *jab = json_array();
+    for (size_t k = 0; k < m->nparams; k++)
+        if (r->at_bound[k]) {
+            json_t *e = json_object();
+            json_object_set_new(e, "name", json_string(m->par[k].name));
+            json_object_set_new(e, "bound", json_string(bound_word(r->at_bound[k])));
+            json_array_append_new(jab, e);
+        }
+    json_object_set_new(o, "at_bound", jab);
     if (have_ref)
         json_object_set_new(o, "reference_hz", json_real(ref_hz));
 
@@ -439,7 +522,7 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         if (!tab->header_done) {
             tprintf(tab, "file,component,profile,status,center_hz,center_hz_err,fwhm_hz,fwhm_hz_err,%s,%s_err,"
                          "shift_hz,shift_hz_err,fwhm_g_hz,fwhm_g_hz_err,fwhm_l_hz,fwhm_l_hz_err,eta,eta_err,q,q_err,"
-                         "height,height_err,gamma_per_s,gamma_per_s_err,chi2,dof,redchi2,errors_scaled\n",
+                         "height,height_err,gamma_per_s,gamma_per_s_err,chi2,dof,redchi2,errors_scaled,at_bound,stop_reason\n",
                     trans ? "od" : "area", trans ? "od" : "area");
             tab->header_done = 1;
         }
@@ -505,8 +588,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         double e_area, area = comp_param(m, r, c, trans ? "od" : "area", &e_area);
         double eg, fg = comp_param(m, r, c, "fwhm_g", &eg), el, fl = comp_param(m, r, c, "fwhm_l", &el);
         double eeta, eta = comp_param(m, r, c, "eta", &eeta), eq, q = comp_param(m, r, c, "q", &eq);
-        tprintf(tab, "\"%s\",%zu,%s,%s", path, c + 1, mc->type->name,
-                r->status == CS_FIT_CONVERGED ? "converged" : cs_fit_status_name(r->status));
+        csv_text(tab, path);
+        tprintf(tab, ",%zu,%s,%s", c + 1, mc->type->name, cs_fit_status_name(r->status));
         csv_num(tab, center); csv_num(tab, cerr); csv_num(tab, fwhm); csv_num(tab, fwhm_err);
         csv_num(tab, area); csv_num(tab, e_area); csv_num(tab, shift); csv_num(tab, shift_err);
         csv_num(tab, fg); csv_num(tab, eg); csv_num(tab, fl); csv_num(tab, el);
@@ -520,7 +603,9 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         csv_num(tab, r->chi2);
         tprintf(tab, ",%zu", r->dof);
         csv_num(tab, r->redchi2);
-        tprintf(tab, ",%d\n", r->errors_scaled);
+        tprintf(tab, ",%d", r->errors_scaled);
+        csv_at_bound(tab, m, r, c);
+        tprintf(tab, ",%s\n", cs_fit_stop_name(r->stop));
     }
     json_object_set_new(o, "components", comps);
 
@@ -539,7 +624,8 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
         if (!fo->quiet)
             printf("      %-8s %s%s\n", short_name(m->par[k].name),
                    cs_format_value_err(r->value[k], r->err[k], CS_DIM_DIMENSIONLESS, b1, sizeof b1),
-                   m->par[k].fixed ? "  (fixed)" : "");
+                   m->par[k].fixed ? "  (fixed)" : r->at_bound[k] == 1 ? "  (at lower bound)" :
+                   r->at_bound[k] == 2 ? "  (at upper bound)" : "");
     }
     json_object_set_new(jb, "names", names);
     json_object_set_new(jb, "params", vals);
@@ -577,9 +663,13 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
     if (!fo->quiet && (r->boot_err || r->mc_err)) {
         printf("  errors from %s:\n", r->boot_err && r->mc_err ? "bootstrap / Monte Carlo" : r->boot_err ? "bootstrap" : "Monte Carlo");
         for (size_t k = 0; k < m->nparams; k++)
-            if (!m->par[k].fixed && m->par[k].tie < 0)
-                printf("      %-10s %.4g%s%.4g\n", m->par[k].name, r->boot_err ? r->boot_err[k] : r->mc_err[k],
-                       r->boot_err && r->mc_err ? " / " : "", r->boot_err && r->mc_err ? r->mc_err[k] : NAN);
+            if (!m->par[k].fixed && m->par[k].tie < 0) {
+                char e1[32], e2[32];
+                printf("      %-10s %s%s%s\n", m->par[k].name,
+                       num_text(r->boot_err ? r->boot_err[k] : r->mc_err[k], "%.4g", e1, sizeof e1),
+                       r->boot_err && r->mc_err ? " / " : "",
+                       r->boot_err && r->mc_err ? num_text(r->mc_err[k], "%.4g", e2, sizeof e2) : "");
+            }
     }
     return o;
 }
@@ -598,16 +688,21 @@ static int write_residuals(table *rt, const char *path, const cs_model *m, const
         tprintf(rt, "file,frequency_hz,data,model,residual,used\n");
         rt->header_done = 1;
     }
-    for (size_t i = 0; i < s->n; i++)
-        tprintf(rt, "\"%s\",%.17g,%.12g,%.12g,%.12g,%d\n", path, s->freq_hz[i], s->y[i], model[i], s->y[i] - model[i],
-                mask[i] ? 1 : 0);
+    for (size_t i = 0; i < s->n; i++) {
+        csv_text(rt, path);
+        tprintf(rt, ",%.17g,%.12g", s->freq_hz[i], s->y[i]);
+        csv_num(rt, model[i]);   /* empty where the model is not finite */
+        csv_num(rt, s->y[i] - model[i]);
+        tprintf(rt, ",%d\n", mask[i] ? 1 : 0);
+    }
     free(model); free(work); free(p);
     return 0;
 }
 
 /* The --plot figure of one spectrum: data, each component on the baseline, the total and the
  * residuals. Returns 0 (the figure's name appended to `figures`) or an exit code. */
-static int plot_fit(const char *file, const cs_model *m, const cs_spectrum *s, json_t *figures)
+static int plot_fit(const char *file, const cs_model *m, const cs_fit_result *r, const cs_spectrum *s,
+                    json_t *figures)
 {
     size_t n = s->n, nc = m->ncomp;
     double *p = malloc(m->nparams * sizeof *p), *q = malloc(m->nparams * sizeof *q);
@@ -634,7 +729,8 @@ static int plot_fit(const char *file, const cs_model *m, const cs_spectrum *s, j
                 q[m->comp[j].first + cs_profile_area_index(m->comp[j].type)] = 0.0;
         cs_model_eval(m, q, s->freq_hz, n, comp + k * n, work);
         cptr[k] = comp + k * n;
-        snprintf(labels[k], sizeof labels[k], "%zu: %s", k + 1, m->comp[k].type->name);
+        snprintf(labels[k], sizeof labels[k], "%zu: %s%s", k + 1, m->comp[k].type->name,
+                 r->status == CS_FIT_CONVERGED ? "" : " (fit failed)");
         lptr[k] = labels[k];
     }
     cs_plot_spectrum_data d;
@@ -650,6 +746,16 @@ static int plot_fit(const char *file, const cs_model *m, const cs_spectrum *s, j
     d.y_quantity = m->mode == CS_MODEL_TRANSMISSION ? "transmission" : NULL;
     cs_plot_options o;
     cs_plot_options_init(&o);
+    /* a figure of a fit that failed, or of one with parameters at bounds, says so above the plot */
+    char title[160] = "";
+    size_t nab = count_at_bound(m, r);
+    if (r->status != CS_FIT_CONVERGED)
+        snprintf(title, sizeof title, "fit status: %s (%s)", cs_fit_status_name(r->status),
+                 r->status == CS_FIT_SINGULAR ? "some errors undefined" : "last point reached, no errors");
+    else if (nab)
+        snprintf(title, sizeof title, "%zu parameter%s at a bound", nab, nab == 1 ? "" : "s");
+    if (title[0])
+        o.title = title;
     if (cs_plot_spectrum(file, &d, &o, &err) != CS_OK)
         rc = cli_plot_failed(file, &err);
     else
@@ -763,7 +869,7 @@ int cmd_fit(int argc, char **argv)
                 if (fo.plot) {
                     char name[1024];
                     cli_plot_name_for(name, sizeof name, fo.plot, path, several);
-                    int w = plot_fit(name, m, s, figures);
+                    int w = plot_fit(name, m, r, s, figures);
                     if (w && !plot_rc)
                         plot_rc = w;
                 }
@@ -791,10 +897,18 @@ int cmd_fit(int argc, char **argv)
                         json_object_set_new(jc, "f_statistic", cli_jnum(F));
                         json_object_set_new(jc, "f_p_value", cli_jnum(pv));
                     }
-                    json_object_set_new(jc, "delta_bic", cli_jnum(rr->bic - first->bic));
-                    if (!fo.quiet)
-                        printf("  compare %s: chi2/dof = %.4g, BIC = %.6g (%+.3g vs %s)\n", text, rr->redchi2, rr->bic,
-                               rr->bic - first->bic, fo.model);
+                    /* BIC of a fit that did not reach its minimum compares nothing: null */
+                    int usable = (rr->status == CS_FIT_CONVERGED || rr->status == CS_FIT_SINGULAR) &&
+                                 (first->status == CS_FIT_CONVERGED || first->status == CS_FIT_SINGULAR);
+                    json_object_set_new(jc, "delta_bic", usable ? cli_jnum(rr->bic - first->bic) : json_null());
+                    if (!fo.quiet) {
+                        char c1[32], c2[32], c3[32];
+                        printf("  compare %s: %s, chi2/dof = %s, BIC = %s (%s vs %s)\n", text,
+                               cs_fit_status_name(rr->status), num_text(rr->redchi2, "%.4g", c1, sizeof c1),
+                               num_text(rr->bic, "%.6g", c2, sizeof c2),
+                               usable ? num_text(rr->bic - first->bic, "%+.3g", c3, sizeof c3) : "undefined",
+                               fo.model);
+                    }
                     if (!fo.quiet && isfinite(pv))
                         printf("          F-test (%s nested in %s): F = %.4g, p = %.3g\n",
                                simple == rr ? text : fo.model, simple == rr ? fo.model : text, F, pv);

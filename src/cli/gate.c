@@ -285,7 +285,8 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
     cs_model *m = cs_model_alloc(list, CS_BASELINE_CONST, CS_MODEL_SUM, &err);
     json_t *o = json_object();
     if (!m) {
-        json_object_set_new(o, "status", json_string(err.msg));
+        json_object_set_new(o, "status", json_string("failed"));
+        json_object_set_new(o, "message", json_string(err.msg));
         return o;
     }
     cs_fit_parameters par = cs_fit_default_parameters();
@@ -293,7 +294,10 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
     cs_fit_result *r = NULL;
     int rc = cs_fit_run(NULL, m, gs->psd->freq_hz, gs->psd->y, gs->psd->sigma, NULL, gs->psd->n, &par, &r, &err);
     if (!r) {
-        json_object_set_new(o, "status", json_string(err.msg));
+        json_object_set_new(o, "status", json_string("failed"));
+        json_object_set_new(o, "message", json_string(err.msg));
+        if (!quiet)
+            printf("      fit %s: failed: %s\n", list, err.msg);
         if (*worst == CLI_EXIT_OK)
             *worst = CLI_EXIT_ANALYSIS;
         cs_model_free(m);
@@ -301,7 +305,8 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
     }
     if (rc != CS_OK && *worst == CLI_EXIT_OK)
         *worst = CLI_EXIT_ANALYSIS;
-    json_object_set_new(o, "status", json_string(r->status == CS_FIT_CONVERGED ? "converged" : cs_fit_status_name(r->status)));
+    json_object_set_new(o, "status", json_string(cs_fit_status_name(r->status)));
+    json_object_set_new(o, "stop_reason", json_string(cs_fit_stop_name(r->stop)));
     json_object_set_new(o, "model", json_string(list));
     json_object_set_new(o, "redchi2", cli_jnum(r->redchi2));
     json_object_set_new(o, "errors_scaled", json_boolean(r->errors_scaled));
@@ -328,6 +333,8 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
                    cs_format_value_err(fw, fwe, CS_DIM_FREQUENCY, b2, sizeof b2));
     }
     json_object_set_new(o, "components", comps);
+    if (!quiet && r->status != CS_FIT_CONVERGED)
+        printf("      fit status: %s (%s)\n", cs_fit_status_name(r->status), cs_fit_stop_name(r->stop));
     if (!quiet)
         printf("      (plain profiles on a periodogram: the line is convolved with the gate and the\n"
                "       bins are not Gaussian; prefer the gate-aware profiles for published widths)\n");
@@ -350,16 +357,18 @@ static json_t *gatefit_gate(cs_gate_workspace *ws, const cs_record *rec, const c
     json_object_set_new(jo, "model", json_string(list));
     json_object_set_new(jo, "method", json_string("gate-aware: least squares on the gate's samples"));
     if (!r) {
-        json_object_set_new(jo, "status", json_string(err.msg));
+        json_object_set_new(jo, "status", json_string("failed"));
+        json_object_set_new(jo, "message", json_string(err.msg));
         if (!quiet)
-            printf("      fit %s: %s\n", list, err.msg);
+            printf("      fit %s: failed: %s\n", list, err.msg);
         if (*worst == CLI_EXIT_OK)
             *worst = CLI_EXIT_ANALYSIS;
         return jo;
     }
     if (rc != CS_OK && *worst == CLI_EXIT_OK)
         *worst = CLI_EXIT_ANALYSIS;
-    json_object_set_new(jo, "status", json_string(r->status == CS_FIT_CONVERGED ? "converged" : cs_fit_status_name(r->status)));
+    json_object_set_new(jo, "status", json_string(cs_fit_status_name(r->status)));
+    json_object_set_new(jo, "stop_reason", json_string(cs_fit_stop_name(r->stop)));
     json_object_set_new(jo, "redchi2", cli_jnum(r->redchi2));
     json_object_set_new(jo, "noise_sd", cli_jnum(r->noise_sd));
     json_object_set_new(jo, "errors_scaled", json_boolean(r->errors_scaled));

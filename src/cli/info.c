@@ -51,9 +51,9 @@ static json_t *meta_json(const cs_meta *m)
         json_object_set_new(v, "text", json_string(e->text ? e->text : ""));
         json_object_set_new(v, "unit", json_string(e->unit ? e->unit : ""));
         if (e->has_number) {
-            json_object_set_new(v, "value", json_real(e->value));
+            json_object_set_new(v, "value", cli_jnum(e->value));
             if (e->dim != CS_DIM_UNKNOWN) {
-                json_object_set_new(v, "si", json_real(e->si));
+                json_object_set_new(v, "si", cli_jnum(e->si));
                 json_object_set_new(v, "si_unit", json_string(cs_dim_si_symbol(e->dim)));
             }
         }
@@ -105,18 +105,21 @@ static json_t *describe_spectrum(const cs_spectrum *s)
     printf("  points: %zu\n", s->n);
     printf("  axis: %s .. %s, step %s (%s)\n", cs_quantity_format(s->freq_hz[0], CS_DIM_FREQUENCY, 10, b1, sizeof b1),
            cs_quantity_format(s->freq_hz[s->n - 1], CS_DIM_FREQUENCY, 10, b2, sizeof b2),
-           cs_quantity_format(step, CS_DIM_FREQUENCY, 6, b3, sizeof b3),
-           uniform ? "uniform" : "non-uniform");
+           isfinite(step) ? cs_quantity_format(step, CS_DIM_FREQUENCY, 6, b3, sizeof b3) : "undefined",
+           !isfinite(step) ? "one point" : uniform ? "uniform" : "non-uniform");
     printf("  axis given in: %s%s%s\n", s->x_unit, s->x_unit_assumed ? " (assumed)" : "",
            s->conv.air ? ", standard air" : "");
     printf("  values: column '%s'%s\n", s->y_name[0] ? s->y_name : "y", s->sigma ? ", with sigma" : "");
-    printf("  noise (robust): %.6g\n", noise);
+    if (isfinite(noise))
+        printf("  noise (robust): %.6g\n", noise);
+    else
+        printf("  noise (robust): undefined\n");
 
     json_t *o = json_object();
     json_object_set_new(o, "n", json_integer((json_int_t)s->n));
     json_object_set_new(o, "freq_min_hz", json_real(s->freq_hz[0]));
     json_object_set_new(o, "freq_max_hz", json_real(s->freq_hz[s->n - 1]));
-    json_object_set_new(o, "step_hz", json_real(step));
+    json_object_set_new(o, "step_hz", cli_jnum(step));
     json_object_set_new(o, "uniform", json_boolean(uniform));
     json_object_set_new(o, "x_unit", json_string(s->x_unit));
     json_object_set_new(o, "x_unit_assumed", json_boolean(s->x_unit_assumed));
@@ -144,7 +147,10 @@ static json_t *describe_record(const cs_record *r, size_t nrec)
            cs_quantity_format(r->dt_s, CS_DIM_TIME, 8, b3, sizeof b3),
            cs_quantity_format(1.0 / r->dt_s, CS_DIM_FREQUENCY, 8, b4, sizeof b4));
     printf("  time given in: %s\n", r->t_unit);
-    printf("  noise (robust): %.6g\n", noise);
+    if (isfinite(noise))
+        printf("  noise (robust): %.6g\n", noise);
+    else
+        printf("  noise (robust): undefined\n");
     json_t *o = json_object();
     json_object_set_new(o, "shot", json_integer((json_int_t)r->shot));
     json_object_set_new(o, "n", json_integer((json_int_t)r->n));

@@ -627,6 +627,17 @@ static json_t *settings_json(const split_opts *so)
 
 /* ---------------------------------------------------------------- summary */
 
+/* The status of the fit behind an era (cs_fit_status_name: "converged", "not converged",
+ * "singular covariance", "model not finite"), or "not fitted" when no fit ran. */
+static const char *era_fit_status(const cs_split_fit *f)
+{
+    if (f->gfit)
+        return cs_fit_status_name(f->gfit->status);
+    if (f->pfit)
+        return cs_fit_status_name(f->pfit->status);
+    return "not fitted";
+}
+
 static const char *fmt_f(double v, double e, char *b, size_t n)
 {
     return cs_format_value_err(v, e, CS_DIM_FREQUENCY, b, n);
@@ -643,7 +654,7 @@ static void print_era(const cs_split_shot *s, cs_split_era e)
                cs_window_format(&f->gate.window, b3, sizeof b3));
     printf(", %s (%s)\n", f->model, f->gate_aware ? "gate-aware fit" : "plain profiles on the gated PSD");
     if (f->status != CS_SPLIT_OK) {
-        printf("    %s: %s\n", cs_split_status_name(f->status), f->message);
+        printf("    %s: %s (fit: %s)\n", cs_split_status_name(f->status), f->message, era_fit_status(f));
         return;
     }
     const cs_split_line *l = &f->line;
@@ -667,6 +678,15 @@ static void print_era(const cs_split_shot *s, cs_split_era e)
                f->pfit->redchi2 > 1 ? " and chi2/dof" : "");
 }
 
+/* A z-score for the summary, "undefined" when it could not be computed. */
+static const char *z_text(double z, char *b, size_t n)
+{
+    if (!isfinite(z))
+        return "undefined";
+    snprintf(b, n, "%.2f", z);
+    return b;
+}
+
 static void print_check(const char *what, const cs_split_line *l, double z_c, double z_w, double thr)
 {
     char b1[96], b2[96];
@@ -674,8 +694,9 @@ static void print_check(const char *what, const cs_split_line *l, double z_c, do
         printf("    %-22s not available\n", what);
         return;
     }
-    printf("    %-22s centre %s, FWHM %s: %.2f and %.2f%s\n", what, fmt_f(l->center_hz, l->center_hz_err, b1, sizeof b1),
-           fmt_f(l->fwhm_hz, l->fwhm_hz_err, b2, sizeof b2), z_c, z_w,
+    char z1[32], z2[32];
+    printf("    %-22s centre %s, FWHM %s: %s and %s%s\n", what, fmt_f(l->center_hz, l->center_hz_err, b1, sizeof b1),
+           fmt_f(l->fwhm_hz, l->fwhm_hz_err, b2, sizeof b2), z_text(z_c, z1, sizeof z1), z_text(z_w, z2, sizeof z2),
            (z_c > thr || z_w > thr) ? "  DISAGREE" : "");
 }
 
@@ -694,8 +715,10 @@ static void print_shot(const cs_split_shot *s, const cs_split_params *p, int ave
         if (b->status == CS_BURST_FOUND)
             printf("  burst: peak at %s, FWHM %s (SNR %.3g)\n", cs_quantity_format(b->peak_time_s, CS_DIM_TIME, 6, b1, sizeof b1),
                    cs_quantity_format(b->fwhm_s, CS_DIM_TIME, 4, b2, sizeof b2), b->snr);
-        else
+        else if (isfinite(b->snr))
             printf("  burst: none found (SNR %.3g)\n", b->snr);
+        else
+            printf("  burst: none found (SNR undefined)\n");
     }
     print_era(s, CS_SPLIT_BURST);
     print_era(s, CS_SPLIT_TAIL);
@@ -756,7 +779,7 @@ static void table_header(cli_buf *t)
     cli_bprintf(t, "file,shot,kind,era,status,method,model,gate_start_s,gate_length_s,center_hz,center_hz_err,fwhm_hz,"
                  "fwhm_hz_err,area,area_err,shift_hz,shift_hz_err,era_shift_hz,era_shift_hz_err,whole_center_hz,"
                  "whole_center_hz_err,whole_fwhm_hz,whole_fwhm_hz_err,z_whole_center,z_whole_fwhm,pencil_center_hz,"
-                 "pencil_center_hz_err,pencil_fwhm_hz,pencil_fwhm_hz_err,z_pencil_center,z_pencil_fwhm\n");
+                 "pencil_center_hz_err,pencil_fwhm_hz,pencil_fwhm_hz_err,z_pencil_center,z_pencil_fwhm,fit_status\n");
 }
 
 static void table_rows(cli_buf *t, const cs_split_shot *s, const char *kind)
@@ -780,7 +803,7 @@ static void table_rows(cli_buf *t, const cs_split_shot *s, const char *kind)
         sb_num(t, pl ? pl->center_hz : NAN); sb_num(t, pl ? pl->center_hz_err : NAN);
         sb_num(t, pl ? pl->fwhm_hz : NAN); sb_num(t, pl ? pl->fwhm_hz_err : NAN);
         sb_num(t, pl ? s->agree_pencil.z_center : NAN); sb_num(t, pl ? s->agree_pencil.z_fwhm : NAN);
-        cli_bprintf(t, "\n");
+        cli_bprintf(t, ",%s\n", era_fit_status(f));
     }
 }
 
@@ -794,7 +817,7 @@ static void table_mean_rows(cli_buf *t, const cs_split_result *r)
         cli_bprintf(t, ",,");
         sb_num(t, r->shift[e].mean); sb_num(t, r->shift[e].mean_err);
         sb_num(t, r->era_shift.mean); sb_num(t, r->era_shift.mean_err);
-        cli_bprintf(t, ",,,,,,,,,,,,\n");
+        cli_bprintf(t, ",,,,,,,,,,,,,\n");
     }
 }
 
