@@ -17,7 +17,11 @@
  * Prints one JSON object per line and per (threads, records):
  *   {"bench":"campaign","threads":T,"records":K,"samples":N,"mb_text":..,"seconds":..,
  *    "records_per_s":..,"ok":..,"peak_rss_kb":..}
- * then a summary line with the peaks for K and 2K records and their ratio. Each run is a fresh
+ * (cpu_s_per_record: user + system time of the run per record, the figure to compare on a busy
+ * machine; cpu_per_wall: how many cores the run kept busy, ~threads when nothing serialises the
+ * threads and the cores are free; voluntary_switches: times a thread slept, e.g. waiting for a
+ * lock; minor_faults: pages first touched, e.g. by large allocations that are mapped afresh for
+ * every record), then a summary line with the peaks for K and 2K records and their ratio. Each run is a fresh
  * process (this program re-executed), so ru_maxrss is the peak of that run alone. Threads take
  * records from a shared counter; each owns one cs_gate_workspace. */
 #include <collshift/simulate.h>
@@ -176,11 +180,15 @@ static int run_child(const char *dir, int threads, size_t records)
     double wall = now() - t0;
     struct rusage ru;
     getrusage(RUSAGE_SELF, &ru);
+    double cpu = (double)ru.ru_utime.tv_sec + 1e-6 * (double)ru.ru_utime.tv_usec + (double)ru.ru_stime.tv_sec +
+                 1e-6 * (double)ru.ru_stime.tv_usec;
     printf("{\"bench\":\"campaign\",\"threads\":%d,\"records\":%zu,\"samples\":%zu,\"mb_text\":%.2f,"
            "\"seconds\":%.3f,\"records_per_s\":%.3f,\"text_mb_per_s\":%.1f,\"ok\":%zu,\"not_ok\":%zu,"
-           "\"peak_rss_kb\":%ld}\n",
+           "\"peak_rss_kb\":%ld,\"cpu_s_per_record\":%.4f,\"cpu_per_wall\":%.2f,\"voluntary_switches\":%ld,"
+           "\"minor_faults\":%ld}\n",
            started, s.nfiles, s.samples, s.bytes / 1e6, wall, (double)s.nfiles / wall,
-           s.bytes / 1e6 / wall, s.ok, s.failed, ru.ru_maxrss);
+           s.bytes / 1e6 / wall, s.ok, s.failed, ru.ru_maxrss, s.nfiles ? cpu / (double)s.nfiles : 0.0,
+           wall > 0 ? cpu / wall : 0.0, ru.ru_nvcsw, ru.ru_minflt);
     fflush(stdout);
     pthread_mutex_destroy(&s.lock);
     free_list(all, nall);

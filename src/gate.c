@@ -136,9 +136,12 @@ static fftw_plan make_plan(int kind, int n, double *in, double *out, unsigned fl
 
 fftw_plan gate_get_plan(cs_gate_workspace *ws, size_t n, int kind, int in_place, cs_error *err)
 {
+    ws->plan_tick++;
     for (size_t i = 0; i < ws->nplans; i++)
-        if (ws->plans[i].n == n && ws->plans[i].kind == kind && ws->plans[i].in_place == in_place)
+        if (ws->plans[i].n == n && ws->plans[i].kind == kind && ws->plans[i].in_place == in_place) {
+            ws->plans[i].used = ws->plan_tick;
             return ws->plans[i].plan;
+        }
     if (n == 0 || kind < CS_GATE_FFT_FORWARD || kind > CS_GATE_FFT_C2R) {
         cs_error_set(err, CS_EINVAL, NULL, -1, -1, "invalid transform: length %zu, kind %d", n, kind);
         return NULL;
@@ -150,7 +153,7 @@ fftw_plan gate_get_plan(cs_gate_workspace *ws, size_t n, int kind, int in_place,
     }
     size_t nin, nout;
     kind_sizes(kind, n, in_place, &nin, &nout);
-    if (ws->nplans == ws->plan_cap) {
+    if (ws->nplans == ws->plan_cap && ws->plan_cap < CS_GATE_PLAN_MAX) {
         size_t cap = ws->plan_cap ? 2 * ws->plan_cap : 8;
         struct plan_entry *p = realloc(ws->plans, cap * sizeof *p);
         if (!p) {
@@ -159,6 +162,13 @@ fftw_plan gate_get_plan(cs_gate_workspace *ws, size_t n, int kind, int in_place,
         }
         ws->plans = p;
         ws->plan_cap = cap;
+    }
+    size_t slot = ws->nplans;
+    if (slot == CS_GATE_PLAN_MAX) {   /* full: the least recently used plan makes room */
+        slot = 0;
+        for (size_t i = 1; i < ws->nplans; i++)
+            if (ws->plans[i].used < ws->plans[slot].used)
+                slot = i;
     }
     if (gate_grow_in(ws, in_place ? (nin > nout ? nin : nout) : nin) != CS_OK ||
         (!in_place && gate_grow(&ws->out, &ws->out_cap, nout) != CS_OK)) {
@@ -171,6 +181,11 @@ fftw_plan gate_get_plan(cs_gate_workspace *ws, size_t n, int kind, int in_place,
                       : ws->effort == CS_GATE_EFFORT_MEASURE ? FFTW_MEASURE
                                                              : FFTW_ESTIMATE;
     cs_gate_planner_lock();
+    if (slot < ws->nplans) {
+        fftw_destroy_plan(ws->plans[slot].plan);
+        ws->plans[slot] = ws->plans[--ws->nplans];   /* compact; the slot is refilled below */
+        slot = ws->nplans;
+    }
     fftw_plan p = make_plan(kind, (int)n, ws->in, out, keep | FFTW_WISDOM_ONLY | FFTW_MEASURE);
     if (!p)
         p = make_plan(kind, (int)n, ws->in, out, keep | effort);
@@ -181,10 +196,11 @@ fftw_plan gate_get_plan(cs_gate_workspace *ws, size_t n, int kind, int in_place,
                      kind_name(kind), n);
         return NULL;
     }
-    ws->plans[ws->nplans].n = n;
-    ws->plans[ws->nplans].kind = kind;
-    ws->plans[ws->nplans].in_place = in_place;
-    ws->plans[ws->nplans].plan = p;
+    ws->plans[slot].n = n;
+    ws->plans[slot].kind = kind;
+    ws->plans[slot].in_place = in_place;
+    ws->plans[slot].plan = p;
+    ws->plans[slot].used = ws->plan_tick;
     ws->nplans++;
     return p;
 }

@@ -83,28 +83,26 @@
 
 /* ---------------------------------------------------------------- smoothing */
 
-/* One centred moving average of odd width b = 2h + 1 from y into out (distinct arrays). */
+/* One centred moving average of odd width b = 2h + 1 from y into out (distinct arrays). The
+ * running sum is formed afresh every `resync` samples (against the drift of rounding); in
+ * between the window moves by at most one sample at each end. */
 static void box(const double *y, size_t n, size_t h, double *out)
 {
-    size_t resync = 2 * h + 1 > 1024 ? 2 * h + 1 : 1024;
-    double s = 0.0;
-    size_t lo = 0, hi = 0;   /* current sum covers [lo, hi) */
-    for (size_t j = 0; j < n; j++) {
-        size_t a = j >= h ? j - h : 0;
-        size_t b = j + h + 1 < n ? j + h + 1 : n;
-        if (j % resync == 0) {
-            s = 0.0;
-            for (size_t k = a; k < b; k++)
-                s += y[k];
-        } else {
-            while (hi < b)
+    const size_t resync = 2 * h + 1 > 1024 ? 2 * h + 1 : 1024;
+    for (size_t j0 = 0; j0 < n; j0 += resync) {
+        const size_t jend = j0 + resync < n ? j0 + resync : n;
+        size_t lo = j0 >= h ? j0 - h : 0, hi = j0 + h + 1 < n ? j0 + h + 1 : n;   /* sum of [lo, hi) */
+        double s = 0.0;
+        for (size_t k = lo; k < hi; k++)
+            s += y[k];
+        out[j0] = s / (double)(hi - lo);
+        for (size_t j = j0 + 1; j < jend; j++) {
+            if (j + h < n)          /* the window's new right end */
                 s += y[hi++];
-            while (lo < a)
+            if (j > h)              /* its left end moves */
                 s -= y[lo++];
+            out[j] = s / (double)(hi - lo);
         }
-        lo = a;
-        hi = b;
-        out[j] = s / (double)(b - a);
     }
 }
 

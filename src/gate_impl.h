@@ -23,6 +23,7 @@ struct plan_entry {
     int kind;
     int in_place;
     fftw_plan plan;
+    unsigned long long used;   /* ws->plan_tick at the last use */
 };
 
 struct win_entry {
@@ -37,7 +38,8 @@ struct win_entry {
 
 struct cs_gate_workspace {
     struct plan_entry *plans;
-    size_t nplans, plan_cap;
+    size_t nplans, plan_cap;   /* nplans <= CS_GATE_PLAN_MAX */
+    unsigned long long plan_tick;
     cs_gate_effort effort;
     double *in;            /* fftw_malloc'ed scratch, in_cap doubles */
     size_t in_cap;

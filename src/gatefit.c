@@ -28,11 +28,15 @@
 #include <gsl/gsl_errno.h>
 
 #include <math.h>
+#include <stddef.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #define PI_ 3.14159265358979323846
+/* Decay rates (burst widths) of the starting model are taken this much smaller (1/this larger)
+ * when choosing the samples the solver evaluates (cs_gatefit_impl_active). */
+#define GF_ACTIVE_MARGIN 0.75
 
 /* ---------------------------------------------------------------- names, parsing, options */
 
@@ -216,10 +220,33 @@ static void fill_components(const gf_fit *F, const double *u, cs_gatefit_result 
 
 /* ---------------------------------------------------------------- set-up */
 
-static int cmp_double(const void *a, const void *b)
+/* The k-th smallest of d[0..n) (k < n), reordering d: selection by repeated partitioning
+ * around d[k] (Hoare's FIND), linear time on average instead of a full sort's n log n. */
+static double select_kth(double *d, size_t n, size_t k)
 {
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
+    ptrdiff_t l = 0, h = (ptrdiff_t)n - 1, kk = (ptrdiff_t)k;
+    while (l < h) {
+        double x = d[kk];
+        ptrdiff_t i = l, j = h;
+        do {
+            while (d[i] < x)
+                i++;
+            while (x < d[j])
+                j--;
+            if (i <= j) {
+                double t = d[i];
+                d[i] = d[j];
+                d[j] = t;
+                i++;
+                j--;
+            }
+        } while (i <= j);
+        if (j < kk)
+            l = i;
+        if (kk < i)
+            h = j;
+    }
+    return d[kk];
 }
 
 /* Robust noise of the gate per real component: 1.4826 MAD(first differences) / sqrt 2; the rms
@@ -235,11 +262,7 @@ static double gate_noise(const double *x, size_t m, int cplx)
             size_t a = cplx ? 2 * j + (size_t)part : j, b = cplx ? 2 * (j + 1) + (size_t)part : j + 1;
             d[nd++] = fabs(x[b] - x[a]);
         }
-    double med = 0.0;
-    if (nd > 0) {
-        qsort(d, nd, sizeof *d, cmp_double);
-        med = d[nd / 2];
-    }
+    double med = nd > 0 ? select_kth(d, nd, nd / 2) : 0.0;
     free(d);
     double s = 1.482602218505602 * med / sqrt(2.0);
     if (s > 0 && isfinite(s))
@@ -320,9 +343,10 @@ static void initial_variables(gf_fit *F, const gf_theta *th0, double *u)
             v[2] = 0.0;
             ia = 3;
         }
-        /* the phase reference: the centroid of the starting intensity over the used samples */
+        /* the phase reference: the centroid of the starting intensity over the used samples
+           (after the active ones it is negligible) */
         double sw = 0.0, sws = 0.0;
-        for (size_t i = 0; i < F->P.nused; i++) {
+        for (size_t i = 0; i < F->P.nact; i++) {
             double s = (double)F->P.idx[i] * F->P.dt;
             double complex E = cs_gatefit_impl_basis(F->P.kind[k], th0->f[k], th0->rate[k], th0->tp[k], s);
             double e2 = creal(E) * creal(E) + cimag(E) * cimag(E);
@@ -372,11 +396,11 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
         if (!isfinite(x[i]))
             return cs_error_set(err, CS_EDATA, rec->source, -1, -1,
                                 "gate '%s': non-finite sample %zu", g->name, first + (cplx ? i / 2 : i));
-    double *w = malloc(m * sizeof *w);
+    double *w = malloc(m * sizeof *w), *ss_after = malloc((m + 1) * sizeof *ss_after);
     size_t *idx = malloc(m * sizeof *idx);
     cs_gatefit_result *r = NULL;
     cs_gate_workspace *own = NULL;
-    if (!w || !idx) {
+    if (!w || !idx || !ss_after) {
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for a gate of %zu samples", m);
         goto done;
     }
@@ -400,6 +424,13 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
     F.P.T = (double)m * rec->dt_s;
     F.P.idx = idx;
     F.P.nused = nused;
+    F.P.nact = nused;
+    ss_after[nused] = 0.0;
+    for (size_t i = nused; i-- > 0;) {
+        size_t j = idx[i];
+        ss_after[i] = ss_after[i + 1] + (cplx ? x[2 * j] * x[2 * j] + x[2 * j + 1] * x[2 * j + 1] : x[j] * x[j]);
+    }
+    F.P.ss_after = ss_after;
     F.lo = lo_hz;
     F.t_g = rec->t0_s + (double)first * rec->dt_s;
     F.np = 0;
@@ -407,7 +438,9 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
         F.first[k] = F.np;
         F.np += cs_gatefit_kind_nparams(F.P.kind[k]);
     }
-    F.nres = cplx ? 2 * nused : nused;
+    const size_t nres_all = cplx ? 2 * nused : nused;
+    F.nres = nres_all;
+    F.nres_all = nres_all;
     if (F.nres <= F.np) {
         rc = cs_error_set(err, CS_EDATA, rec->source, -1, -1,
                           "gate '%s': %zu samples with window > 0 give %zu residuals, not more than the "
@@ -452,17 +485,31 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
     rc = cs_gatefit_impl_start(ws, &F.P, o->nstart ? o->start : NULL, F.t_g, lo_hz, &th0, err);
     if (rc != CS_OK)
         goto done;
+    /* the active stretch: where the starting model, its rates 0.75 times smaller (its widths
+       4/3 times larger), is not negligible; after the solve it must still cover the solution's
+       model, else the fit goes on from there over a longer stretch */
     double u[CS_GATEFIT_MAX_COMP * CS_GATEFIT_BURST_NPARAMS];
+    F.P.nact = cs_gatefit_impl_active(&F.P, &th0, GF_ACTIVE_MARGIN);
     initial_variables(&F, &th0, u);
     r = result_alloc(model, F.P.ncomp, F.np);
     if (!r) {
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for a fit result");
         goto done;
     }
-    rc = cs_gatefit_impl_solve(&F, o, u, r, err);
-    if (rc != CS_OK)
-        goto done;
-    cs_gatefit_impl_theta(&F, u, &th);
+    size_t niter = 0;
+    for (;;) {
+        F.nres = cplx ? 2 * F.P.nact : F.P.nact;
+        F.rest_ss = ss_after[F.P.nact] / (F.s_fit * F.s_fit);
+        rc = cs_gatefit_impl_solve(&F, o, u, r, err);
+        niter += r->niter;
+        if (rc != CS_OK)
+            goto done;
+        cs_gatefit_impl_theta(&F, u, &th);
+        if (F.P.nact == nused || cs_gatefit_impl_active(&F.P, &th, 1.0) <= F.P.nact)
+            break;
+        F.P.nact = cs_gatefit_impl_active(&F.P, &th, GF_ACTIVE_MARGIN);
+    }
+    r->niter = niter;
     gsl_vector *res = gsl_vector_alloc(F.nres);
     if (!res) {
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for the residuals");
@@ -473,9 +520,9 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
     gsl_vector_free(res);
     if (!finite)
         r->status = CS_FIT_MODEL_NAN;
-    r->rss = finite ? nrm * nrm * F.s_fit * F.s_fit : NAN;
-    r->n = F.nres;
-    r->dof = F.nres - F.np;
+    r->rss = finite ? nrm * nrm * F.s_fit * F.s_fit + ss_after[F.P.nact] : NAN;
+    r->n = nres_all;
+    r->dof = nres_all - F.np;
     r->noise = o->noise;
     r->errors_scaled = o->noise == CS_GATEFIT_NOISE_RESIDUALS;
     r->noise_sd = r->errors_scaled ? sqrt(r->rss / (double)r->dof) : sigma;
@@ -522,6 +569,7 @@ done:
     *out = r;
     cs_gate_free(own);
     free(idx);
+    free(ss_after);
     free(w);
     return rc;
 }

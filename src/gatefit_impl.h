@@ -38,14 +38,31 @@ typedef struct gf_problem {
     size_t m;                /* samples in the gate */
     double dt;               /* sample interval, s */
     double T;                /* gate length m dt, s */
-    const size_t *idx;       /* the nused sample indices j (< m) with window > 0 */
+    const size_t *idx;       /* the nused sample indices j (< m) with window > 0, increasing */
     size_t nused;
+    /* The model is evaluated on the first nact used samples only: beyond them every component's
+     * basis is below e^-GF_NEGLIGIBLE of its peak (cs_gatefit_impl_active), so the model and its
+     * derivatives there are zero to rounding and those residuals are the constant -x. Their sum
+     * of squares is ss_after[nact] (ss_after[i]: sum of the squared samples, both parts, of used
+     * samples i..nused-1; nused + 1 values, ss_after[nused] = 0). */
+    size_t nact;
+    const double *ss_after;
 } gf_problem;
+
+/* A basis below e^-GF_NEGLIGIBLE of its peak counts as zero (e^-40 = 4e-18: its square and its
+ * products with the data are far below the rounding of the sums it would enter). */
+#define GF_NEGLIGIBLE 40.0
 
 /* The component's value without its amplitude at time s = j dt from the gate start (basis
  * function E: the model is sum_k c_k E_k). */
 CS_GATEFIT_INTERNAL double complex cs_gatefit_impl_basis(cs_gatefit_kind kind, double f, double rate,
                                                         double tp, double s);
+
+/* How many of the used samples (a prefix of idx) the model th needs: the first sample after
+ * which every component's basis stays below e^-GF_NEGLIGIBLE of its peak, with the decay rates
+ * taken `margin` (<= 1) times smaller and the burst widths 1/margin times larger, so that the
+ * set still holds while a fit moves them. P->nused when that is not finite. */
+CS_GATEFIT_INTERNAL size_t cs_gatefit_impl_active(const gf_problem *P, const gf_theta *th, double margin);
 
 /* Complex amplitudes of all components for fixed nonlinear parameters th->f, rate, tp, by linear
  * least squares over the used samples (real data: real part of the model); written to th->c.
@@ -64,7 +81,11 @@ CS_GATEFIT_INTERNAL int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_pr
 typedef struct gf_fit {
     gf_problem P;
     double lo, t_g;                      /* LO frequency, time of the gate's first sample */
-    size_t np, nres;                     /* parameters (= internal variables), residuals */
+    size_t np, nres;                     /* parameters (= internal variables), residuals evaluated
+                                            (those of the first P.nact used samples) */
+    size_t nres_all;                     /* residuals of every used sample */
+    double rest_ss;                      /* sum of the squared constant residuals of the used
+                                            samples after P.nact, in units of s_fit^2 */
     size_t first[CS_GATEFIT_MAX_COMP];   /* first internal variable of each component */
     double f0[CS_GATEFIT_MAX_COMP];      /* starting frequency in the record, Hz */
     double sf[CS_GATEFIT_MAX_COMP];      /* frequency per unit of u0, Hz */

@@ -24,6 +24,12 @@
  * split into real and imaginary rows (real records: real rows only). Each evaluation costs one
  * exp and one sincos per sample and component.
  *
+ * Only the residuals of the first P.nact used samples are evaluated (gatefit_impl.h): after
+ * them the model is zero to rounding, so those residuals are constants that change neither J,
+ * the steps nor the trust region's ratios (actual over predicted reduction, both relative to
+ * the same |f|^2); the gradient test adds their sum of squares to |f|^2 so that it is the test
+ * over all samples.
+ *
  * Solver: gsl_multifit_nlinear_trust with the Levenberg-Marquardt subproblem (trs_lm), More's
  * scaling and the QR linear solver (accurate when J is ill-conditioned, and at 4 or 9 columns
  * its cost is nothing next to the model). A point where the model is not finite (e^{u1}
@@ -35,8 +41,10 @@
  * Gauss-Newton step d from the current point is computed (truncated SVD of J) and the fit has
  * converged when d passes the xtol test; and when GSL gives up (GSL_ENOPROG: 15 rejected trial
  * steps) the fit has converged if d is below 1e4 xtol, i.e. the minimum is within 1e-6 of a
- * variable of order one, far inside any statistical error, and not converged otherwise. d is
- * then applied as a last step unless the cost rises beyond rounding (the same scheme as the
+ * variable of order one, or if every component of d is below 1e-3 of its standard error (a
+ * variable scaled by the long gate, such as u0 = (f - f0) T, can sit 1e-6 from the minimum of a
+ * 10^5-sample gate with the cost flat to rounding, while its error is of order one), and not
+ * converged otherwise. d is then applied as a last step unless the cost rises beyond rounding (the same scheme as the
  * spectrum fitter's, src/fit_solve.c).
  *
  * Covariance. At the solution J (in u) has its columns equilibrated to unit norm and
@@ -52,6 +60,7 @@
 
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
+#include <gsl/gsl_linalg.h>
 #include <gsl/gsl_multifit.h>
 #include <gsl/gsl_multifit_nlinear.h>
 
@@ -62,6 +71,7 @@
 #define PI_ 3.14159265358979323846
 #define GF_PENALTY 1e100        /* norm of the residual vector at a non-finite model */
 #define GF_NOPROG_XTOL 1e4      /* steps below this * xtol: "no progress" means converged */
+#define GF_NOPROG_NSE 1e-3      /* ... and so do steps below this many standard errors */
 #define GF_RANK_RTOL 1e-10      /* covariance: column dropped when |R_kk| <= this * |R_11| */
 #define GF_EXP_MAX 700.0        /* e^u beyond this is treated as overflow */
 
@@ -103,7 +113,7 @@ int cs_gatefit_impl_evaluate(gf_fit *F, const double *u, gsl_vector *res, gsl_ma
         double ph = -2.0 * PI_ * th.f[k] * F->sref[k];
         rot[k] = cos(ph) + I * sin(ph);
     }
-    for (size_t i = 0; ok && i < P->nused; i++) {
+    for (size_t i = 0; ok && i < P->nact; i++) {
         size_t j = P->idx[i];
         double s = (double)j * P->dt;
         double complex M = 0.0;
@@ -203,6 +213,63 @@ static int gauss_newton_step(gf_fit *F, const double *u, gsl_matrix *J, gsl_vect
     return 1;
 }
 
+/* Every component of the Gauss-Newton step d below GF_NOPROG_NSE standard errors (C: the
+ * covariance gsl_multifit_linear_tsvd returns, scaled by the residuals' variance). */
+static int within_errors(const gsl_vector *d, const gsl_matrix *C)
+{
+    for (size_t j = 0; j < d->size; j++) {
+        double v = gsl_matrix_get(C, j, j);
+        if (!(v > 0) || !(fabs(gsl_vector_get(d, j)) <= GF_NOPROG_NSE * sqrt(v)))
+            return 0;
+    }
+    return 1;
+}
+
+/* The Gauss-Newton step d = -(J^T J)^-1 J^T f at the workspace's current point from its J and
+ * f (normal equations, equilibrated, Cholesky), and whether every component of d is below
+ * GF_NOPROG_NSE standard errors, the errors from (J^T J)^-1 times chi2/dof over all used
+ * samples. Returns 0 when J^T J is not positive definite. A (np x np) and g (np) are scratch. */
+static int gn_normal(const gf_fit *F, const gsl_multifit_nlinear_workspace *gw, gsl_matrix *A, gsl_vector *g,
+                     gsl_vector *d, int *within)
+{
+    const size_t np = F->np;
+    *within = 0;
+    gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, gw->J, 0.0, A);
+    gsl_blas_dgemv(CblasTrans, 1.0, gw->J, gw->f, 0.0, g);
+    double D[CS_GATEFIT_MAX_COMP * CS_GATEFIT_BURST_NPARAMS];
+    for (size_t a = 0; a < np; a++) {
+        double v = gsl_matrix_get(A, a, a);
+        if (!(v > 0) || !isfinite(v))
+            return 0;
+        D[a] = sqrt(v);
+    }
+    for (size_t a = 0; a < np; a++)
+        for (size_t b = 0; b <= a; b++) {
+            double v = gsl_matrix_get(A, a, b) / (D[a] * D[b]);
+            gsl_matrix_set(A, a, b, v);
+            gsl_matrix_set(A, b, a, v);
+        }
+    if (gsl_linalg_cholesky_decomp1(A) != GSL_SUCCESS)
+        return 0;
+    for (size_t a = 0; a < np; a++)
+        gsl_vector_set(d, a, -gsl_vector_get(g, a) / D[a]);
+    if (gsl_linalg_cholesky_svx(A, d) != GSL_SUCCESS || gsl_linalg_cholesky_invert(A) != GSL_SUCCESS)
+        return 0;
+    double fn = gsl_blas_dnrm2(gw->f);
+    double s2 = (fn * fn + F->rest_ss) / (double)(F->nres_all > np ? F->nres_all - np : 1);
+    int ok = 1;
+    for (size_t a = 0; a < np; a++) {
+        double da = gsl_vector_get(d, a) / D[a], va = gsl_matrix_get(A, a, a) / (D[a] * D[a]) * s2;
+        gsl_vector_set(d, a, da);
+        if (!isfinite(da) || !(va > 0))
+            return 0;
+        if (!(fabs(da) <= GF_NOPROG_NSE * sqrt(va)))
+            ok = 0;
+    }
+    *within = ok;
+    return 1;
+}
+
 /* Run the trust-region solver from u (np values, updated to the last point reached). */
 int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_gatefit_result *r,
                           cs_error *err)
@@ -256,7 +323,7 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
              * left is below 1e4 xtol (far below any statistical error), else stuck */
             r->stop = CS_FIT_STOP_NO_PROGRESS;
             if (!F->last_nan && gauss_newton_step(F, gw->x->data, Jg, rg, dg, Cg, lw) &&
-                small_step(gw->x, dg, GF_NOPROG_XTOL * o->xtol)) {
+                (small_step(gw->x, dg, GF_NOPROG_XTOL * o->xtol) || within_errors(dg, Cg))) {
                 r->status = CS_FIT_CONVERGED;
                 polish = 1;
             } else if (F->last_nan) {
@@ -282,10 +349,25 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
             polish = 1;
             break;
         }
+        /* GSL's gradient test, max_j |g_j| max(u_j, 1) <= gtol max(|f|^2 / 2, 1), with |f|^2 over
+           every used sample (the constant residuals after the active stretch included) */
         int info = 0;
-        if (gsl_multifit_nlinear_test(0.0, o->gtol, 0.0, &info, gw) == GSL_SUCCESS && info == 2) {
+        gsl_multifit_nlinear_test(0.0, 0.0, 0.0, &info, gw);   /* fills gw->g = J^T f */
+        double gnorm = 0.0, fn = gsl_blas_dnrm2(gw->f);
+        for (size_t j = 0; j < F->np; j++)
+            gnorm = fmax(gnorm, fabs(fmax(gsl_vector_get(gw->x, j), 1.0) * gsl_vector_get(gw->g, j)));
+        if (gnorm <= o->gtol * fmax(0.5 * (fn * fn + F->rest_ss), 1.0)) {
             r->status = CS_FIT_CONVERGED;
             r->stop = CS_FIT_STOP_SMALL_GRADIENT;
+            break;
+        }
+        /* the minimum (the Gauss-Newton step from here) within GF_NOPROG_NSE standard errors:
+           converged; the step is applied as the last one */
+        int within = 0;
+        if (gn_normal(F, gw, Cg, ug, dg, &within) && within) {
+            r->status = CS_FIT_CONVERGED;
+            r->stop = CS_FIT_STOP_SMALL_STEP;
+            polish = 1;
             break;
         }
     }

@@ -32,11 +32,14 @@
  * gate length). The pencil's components come by decreasing amplitude and are given to the
  * decays in the order of the model. If the pencil fails, the largest peaks of the periodogram
  * of that stretch (zero-padded 4 times, peaks at least 4 resolution widths apart) give the
- * frequencies and Gamma = 2 / (stretch length).
+ * frequencies and Gamma = 2 / (stretch length). When the user's starting values give the
+ * frequency and the rate of every decay (the split pipeline passes its own pencil's), no pencil
+ * is run: its values would be overridden anyway.
  *
  * Amplitudes: with every nonlinear parameter set, the model is linear in the real and
  * imaginary parts of the complex amplitudes; they are the linear least-squares solution
- * (gsl_multifit_linear, SVD) over the samples with window > 0. */
+ * (gsl_multifit_linear, SVD) over the samples with window > 0 where the model is not
+ * negligible (cs_gatefit_impl_active: the other samples add nothing to the normal equations). */
 #include "gatefit_impl.h"
 
 #include <collshift/pencil.h>
@@ -66,9 +69,40 @@ double complex cs_gatefit_impl_basis(cs_gatefit_kind kind, double f, double rate
     return env * cos(ph) + I * (env * sin(ph));
 }
 
+size_t cs_gatefit_impl_active(const gf_problem *P, const gf_theta *th, double margin)
+{
+    if (P->nused == 0)
+        return 0;
+    double s_cut = 0.0;
+    for (size_t k = 0; k < P->ncomp; k++) {
+        double s = P->kind[k] == CS_GATEFIT_DECAY
+                       ? 2.0 * GF_NEGLIGIBLE / (th->rate[k] * margin)   /* e^{-Gamma s / 2} */
+                       : th->tp[k] + (GF_NEGLIGIBLE + 1.0) * th->rate[k] / margin; /* sech z < 2 e^-|z| */
+        if (!(s < INFINITY))
+            return P->nused;
+        s_cut = fmax(s_cut, s);
+    }
+    double jc = s_cut / P->dt;
+    if (!(jc < (double)P->idx[P->nused - 1]))
+        return P->nused;
+    /* the first used sample after jc, at least a few dozen samples */
+    size_t lo = 0, hi = P->nused;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if ((double)P->idx[mid] <= jc)
+            lo = mid + 1;
+        else
+            hi = mid;
+    }
+    size_t need = 64 + 8 * CS_GATEFIT_MAX_COMP * CS_GATEFIT_BURST_NPARAMS;
+    return lo > need ? lo : need < P->nused ? need : P->nused;
+}
+
 int cs_gatefit_impl_amplitudes(const gf_problem *P, gf_theta *th, cs_error *err)
 {
-    const size_t K = P->ncomp, nc = 2 * K, rows = P->cplx ? 2 * P->nused : P->nused;
+    /* the samples where the model is not negligible: the others do not change the solution */
+    const size_t na = cs_gatefit_impl_active(P, th, 1.0);
+    const size_t K = P->ncomp, nc = 2 * K, rows = P->cplx ? 2 * na : na;
     gsl_matrix *X = gsl_matrix_alloc(rows, nc);
     gsl_vector *y = gsl_vector_alloc(rows), *c = gsl_vector_alloc(nc);
     gsl_matrix *cov = gsl_matrix_alloc(nc, nc);
@@ -78,7 +112,7 @@ int cs_gatefit_impl_amplitudes(const gf_problem *P, gf_theta *th, cs_error *err)
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for the starting amplitudes");
         goto done;
     }
-    for (size_t i = 0; i < P->nused; i++) {
+    for (size_t i = 0; i < na; i++) {
         size_t j = P->idx[i];
         double s = (double)j * P->dt;
         for (size_t k = 0; k < K; k++) {
@@ -293,11 +327,13 @@ static void apply_user(const gf_problem *P, const cs_gatefit_start *user, double
     }
 }
 
-/* Sum of squared residuals of the model th over the used samples. */
+/* Sum of squared residuals of the model th over the used samples (those after the model's
+ * active stretch hold only data). */
 static double model_rss(const gf_problem *P, const gf_theta *th)
 {
-    double rss = 0.0;
-    for (size_t i = 0; i < P->nused; i++) {
+    const size_t na = cs_gatefit_impl_active(P, th, 1.0);
+    double rss = P->ss_after[na];
+    for (size_t i = 0; i < na; i++) {
         size_t j = P->idx[i];
         double s = (double)j * P->dt;
         double complex M = 0.0;
@@ -354,11 +390,18 @@ int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_problem *P, const cs_g
      * the candidate whose starting model leaves the smaller residual wins */
     size_t j_after = (size_t)fmin(ceil(after / dt), (double)m), need = 8 * nd > 32 ? 8 * nd : 32;
     size_t cand[2] = {0, j_after}, ncand = nd > 0 && j_after > 0 && m - j_after >= need ? 2 : 1;
+    /* the user's frequency and rate for every decay: no pencil needed (it would be overridden) */
+    int user_decays = user != NULL;
+    for (size_t k = 0; user && k < K; k++)
+        if (P->kind[k] == CS_GATEFIT_DECAY && !(isfinite(user[k].center_hz) && isfinite(user[k].gamma_per_s)))
+            user_decays = 0;
+    if (user_decays)
+        ncand = 1;
     double best = INFINITY;
     gf_theta trial;
     for (size_t ci = 0; ci < ncand; ci++) {
         trial = *th;
-        if (nd > 0) {
+        if (nd > 0 && !user_decays) {
             double fd[CS_GATEFIT_MAX_COMP], gd[CS_GATEFIT_MAX_COMP];
             rc = decay_frequencies(ws, z + 2 * cand[ci], m - cand[ci], dt, nd, fd, gd, err);
             if (rc != CS_OK)

@@ -331,6 +331,24 @@ static int analyse_shot(const split_ctx *cx, const cs_record *rec, cs_record *co
         }
     }
 
+    /* the matrix pencil of the tail gate first: its strongest decaying component also starts
+       the tail era's gate-aware fit (which would otherwise run a pencil of its own on the same
+       samples for its starting values) */
+    if (p->pencil && !averaged) {
+        rc = cs_split_impl_pencil(rec, sh, err);
+        if (rc != CS_OK)
+            return rc;
+    }
+    cs_gatefit_start tail_hint;
+    const cs_gatefit_start *hint = NULL;
+    if (p->pencil && !averaged && sh->npencil > 0 && sh->pencil[0].ok) {
+        cs_gatefit_start_init(&tail_hint);
+        tail_hint.center_hz = sh->pencil[0].center_hz;
+        tail_hint.gamma_per_s = 2.0 * 3.14159265358979323846 * sh->pencil[0].fwhm_hz;
+        if (isfinite(tail_hint.center_hz) && tail_hint.gamma_per_s > 0 && isfinite(tail_hint.gamma_per_s))
+            hint = &tail_hint;
+    }
+
     /* the eras */
     for (int e = 0; e < CS_SPLIT_NERA; e++) {
         cs_split_fit *f = &sh->era[e];
@@ -343,7 +361,7 @@ static int analyse_shot(const split_ctx *cx, const cs_record *rec, cs_record *co
         }
         cs_gate g = f->gate;
         rc = cs_split_impl_fit_era(cx, rec, shots, nshots, (cs_split_era)e, &g, model, ga, sh->lo_hz, sh->ref_hz,
-                                   floor_sd, NULL, f, err);
+                                   floor_sd, NULL, e == CS_SPLIT_TAIL ? hint : NULL, f, err);
         if (rc != CS_OK)
             return rc;
     }
@@ -363,11 +381,6 @@ static int analyse_shot(const split_ctx *cx, const cs_record *rec, cs_record *co
     rc = cs_split_impl_whole(cx, rec, shots, nshots, sh, err);
     if (rc != CS_OK)
         return rc;
-    if (p->pencil && !averaged) {
-        rc = cs_split_impl_pencil(rec, sh, err);
-        if (rc != CS_OK)
-            return rc;
-    }
     for (int e = 0; e < CS_SPLIT_NERA; e++)
         cs_split_impl_agree(&sh->era[e].line, &sh->whole_line[e], p->agree_nsigma, &sh->agree_whole[e]);
     cs_split_impl_agree(lt, &sh->pencil[0], p->agree_nsigma, &sh->agree_pencil);

@@ -101,7 +101,8 @@ static void gatefit_energy(const cs_gatefit_result *r, const cs_gatefit_componen
 
 static int gatefit_era(const split_ctx *cx, const cs_record *rec, cs_split_era era, const cs_gate *g,
                        const char *model, double lo_hz, double ref_hz, double floor_sd,
-                       const cs_gatefit_result *from, cs_split_fit *f, cs_error *err)
+                       const cs_gatefit_result *from, const cs_gatefit_start *hint, cs_split_fit *f,
+                       cs_error *err)
 {
     const cs_split_params *p = cx->p;
     cs_gatefit_options o;
@@ -121,6 +122,14 @@ static int gatefit_era(const split_ctx *cx, const cs_record *rec, cs_split_era e
         }
         o.start = st;
         o.nstart = from->ncomp;
+    } else if (hint) {
+        cs_gatefit_kind kinds[CS_GATEFIT_MAX_COMP];
+        size_t nc = 0;
+        if (cs_gatefit_parse(model, kinds, CS_GATEFIT_MAX_COMP, &nc, NULL) == CS_OK && nc == 1) {
+            st[0] = *hint;
+            o.start = st;
+            o.nstart = 1;
+        }
     }
     o.noise = p->noise;
     if (p->noise == CS_GATEFIT_NOISE_GIVEN) {
@@ -289,6 +298,9 @@ static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb)
     return CS_OK;
 }
 
+static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
+                          const double *fy, size_t n, cs_split_fit *f, cs_error *err);
+
 /* Fit `model` plus the floor to a gated PSD in two passes (split.h), errors scaled by
  * sqrt(enbw/df). band: fit only the bins that hold the lines (whole_band; the whole-record
  * estimate), else the whole axis. Leaves the fit in f->pmodel, f->pfit and sets the spectrum
@@ -307,10 +319,17 @@ static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const cha
     f->nshots = gs->nshots;
     f->df_hz = gs->df_hz;
     f->enbw_hz = gs->enbw_hz;
-    f->err_scale = sqrt(gs->enbw_hz / gs->df_hz);
+    f->err_scale = sqrt(gs->enbw_hz / f->df_hz);
     f->energy_scale = gs->dt_s * gs->sum_w2;
     f->first = gs->first;
     f->m = gs->m;
+    return plain_fit_bins(cx, gs, model, fx, fy, n, f, err);
+}
+
+/* The fit of plain_fit on the n bins fx, fy (the spectrum fields of f already set). */
+static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
+                          const double *fy, size_t n, cs_split_fit *f, cs_error *err)
+{
     cs_error e2;
     cs_error_clear(&e2);
     f->pmodel = cs_model_alloc(model, cx->p->baseline, CS_MODEL_SUM, &e2);
@@ -529,8 +548,8 @@ static int plain_era(const split_ctx *cx, const cs_record *rec, cs_record *const
 
 int cs_split_impl_fit_era(const split_ctx *cx, const cs_record *rec, cs_record *const *shots, size_t nshots,
                           cs_split_era era, const cs_gate *g, const char *model, int gate_aware, double lo_hz,
-                          double ref_hz, double noise_floor_sd, const cs_gatefit_result *from, cs_split_fit *f,
-                          cs_error *err)
+                          double ref_hz, double noise_floor_sd, const cs_gatefit_result *from,
+                          const cs_gatefit_start *hint, cs_split_fit *f, cs_error *err)
 {
     cs_split_impl_fit_release(f);
     f->status = CS_SPLIT_FAILED;
@@ -542,7 +561,7 @@ int cs_split_impl_fit_era(const split_ctx *cx, const cs_record *rec, cs_record *
     f->gate = *g;
     f->gate_ok = 1;
     if (gate_aware)
-        return gatefit_era(cx, rec, era, g, model, lo_hz, ref_hz, noise_floor_sd, from, f, err);
+        return gatefit_era(cx, rec, era, g, model, lo_hz, ref_hz, noise_floor_sd, from, hint, f, err);
     return plain_era(cx, rec, shots, nshots, era, g, model, lo_hz, ref_hz, f, err);
 }
 
@@ -641,7 +660,14 @@ int cs_split_impl_pencil(const cs_record *rec, cs_split_shot *sh, cs_error *err)
         sh->pencil_status = CS_EDATA;
         return CS_OK;
     }
+    /* the automatic order goes up to the components a shot keeps (CS_SPLIT_PENCIL_MAX; twice
+       that for a real record, whose lines come as +- pairs): the block Krylov iteration that
+       finds the pencil's subspace then needs K = max_order + 1 singular vectors instead of the
+       default 9, which halves its cost on a tail gate */
     cs_pencil_parameters pp = cs_pencil_default_parameters();
+    size_t keep = rec->is_complex ? CS_SPLIT_PENCIL_MAX : 2 * CS_SPLIT_PENCIL_MAX;
+    if (keep < pp.max_order)
+        pp.max_order = keep;
     cs_pencil_result pr;
     cs_pencil_result_init(&pr);
     const double *x = rec->data + (rec->is_complex ? 2 * first : first);

@@ -37,7 +37,9 @@ CS_SPLIT_INTERNAL void cs_split_impl_set_shift(cs_split_line *l, double ref_hz);
  * *f (whose spec and gate fields the caller may have set; f's previous fits are released).
  * shots/nshots: when nshots > 1 the gated spectra of all shots are power-averaged (plain models
  * only). noise_floor_sd: sigma for NOISE_GIVEN with noise_sd 0. from: a converged gate-aware fit
- * of the same model whose values start this one (NULL: automatic starting values). Returns CS_OK when the outcome is
+ * of the same model whose values start this one (NULL: automatic starting values). hint: when
+ * from is NULL and the model is a single gate-aware component, its starting values (NULL: none;
+ * NaN fields are ignored). Returns CS_OK when the outcome is
  * in f->status (OK or an analysis failure), or a fatal code (CS_ENOMEM, CS_EUNSUP, CS_EINVAL,
  * CS_EDATA for unusable samples). */
 CS_SPLIT_INTERNAL int cs_split_impl_fit_era(const split_ctx *cx, const cs_record *rec,
@@ -45,7 +47,8 @@ CS_SPLIT_INTERNAL int cs_split_impl_fit_era(const split_ctx *cx, const cs_record
                                             cs_split_era era, const cs_gate *g,
                                             const char *model, int gate_aware, double lo_hz,
                                             double ref_hz, double noise_floor_sd,
-                                            const cs_gatefit_result *from, cs_split_fit *f,
+                                            const cs_gatefit_result *from,
+                                            const cs_gatefit_start *hint, cs_split_fit *f,
                                             cs_error *err);
 
 /* The whole-record estimate of sh (sh->lo_hz, ref_hz set): the plain whole_model fitted to the

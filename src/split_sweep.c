@@ -234,10 +234,10 @@ int cs_split_impl_sweep(const split_ctx *cx, const cs_record *rec, cs_split_shot
             const cs_gatefit_result *from =
                 def->status == CS_SPLIT_OK && def->gfit && def->gfit->status == CS_FIT_CONVERGED ? def->gfit : NULL;
             int rc = cs_split_impl_fit_era(cx, rec, NULL, 1, era, &row->gate, def->model, def->gate_aware, sh->lo_hz,
-                                           sh->ref_hz, floor_sd, from, &tmp, err);
+                                           sh->ref_hz, floor_sd, from, NULL, &tmp, err);
             if (rc == CS_OK && from && tmp.status == CS_SPLIT_NOT_CONVERGED)   /* then from scratch */
                 rc = cs_split_impl_fit_era(cx, rec, NULL, 1, era, &row->gate, def->model, def->gate_aware, sh->lo_hz,
-                                           sh->ref_hz, floor_sd, NULL, &tmp, err);
+                                           sh->ref_hz, floor_sd, NULL, NULL, &tmp, err);
             if (rc != CS_OK) {
                 cs_split_impl_fit_release(&tmp);
                 return rc;

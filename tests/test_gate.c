@@ -493,6 +493,38 @@ END_TEST
 
 /* ---- transforms and the plan cache ---------------------------------------------------------- */
 
+/* The cache is bounded: transforms of ever new lengths (a campaign whose gates differ from
+ * record to record) keep at most CS_GATE_PLAN_MAX plans, the least recently used one making
+ * room, and a transform whose plan was evicted still gives the right answer. Check: the DFT of
+ * a unit impulse at sample 1 is exp(-2 pi i k / n) (the definition of the DFT; common practice). */
+START_TEST(test_plan_cache_bounded)
+{
+    cs_gate_workspace *ws = cs_gate_alloc();
+    const void *keep = cs_gate_plan(ws, 96, CS_GATE_FFT_FORWARD, 0, NULL);
+    ck_assert_ptr_nonnull(keep);
+    for (size_t n = 100; n < 100 + 2 * CS_GATE_PLAN_MAX; n++) {
+        ck_assert_ptr_nonnull(cs_gate_plan(ws, n, CS_GATE_FFT_FORWARD, 0, NULL));
+        /* used again and again: the most recently used plan is never the one evicted */
+        ck_assert_ptr_eq(cs_gate_plan(ws, 96, CS_GATE_FFT_FORWARD, 0, NULL), keep);
+        ck_assert_uint_le(cs_gate_plan_count(ws), CS_GATE_PLAN_MAX);
+    }
+    ck_assert_uint_eq(cs_gate_plan_count(ws), CS_GATE_PLAN_MAX);
+    const size_t n = 100;   /* its plan was evicted long ago */
+    double in[2 * 100], out[2 * 100];
+    for (size_t j = 0; j < 2 * n; j++)
+        in[j] = 0.0;
+    in[2] = 1.0;
+    ck_assert_int_eq(cs_gate_fft(ws, CS_GATE_FFT_FORWARD, n, in, out, NULL), CS_OK);
+    for (size_t k = 0; k < n; k++) {
+        double ph = -2.0 * 3.14159265358979323846 * (double)k / (double)n;
+        ck_assert_double_eq_tol(out[2 * k], cos(ph), 1e-12);
+        ck_assert_double_eq_tol(out[2 * k + 1], sin(ph), 1e-12);
+    }
+    ck_assert_uint_eq(cs_gate_plan_count(ws), CS_GATE_PLAN_MAX);
+    cs_gate_free(ws);
+}
+END_TEST
+
 /* The same (length, kind, in-place) gives the same cached plan; others give new ones. */
 START_TEST(test_plan_cache)
 {
@@ -1023,6 +1055,7 @@ static Suite *gate_suite(void)
     suite_add_tcase(s, tc);
     tc = tcase_create("fftw");
     tcase_add_test(tc, test_plan_cache);
+    tcase_add_test(tc, test_plan_cache_bounded);
     tcase_add_test(tc, test_fft_kinds);
     tcase_add_test(tc, test_fast_size);
     tcase_add_test(tc, test_wisdom);

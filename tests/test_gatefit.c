@@ -570,6 +570,39 @@ START_TEST(test_real_noisy)
 }
 END_TEST
 
+/* A long gate that is mostly noise: a complex decay (Gamma = 2 pi x 1 MHz, amplitude e-folding
+ * in 320 ns) gated over 40 us at 1 ns, so that after ~13 us the model is below e^-40 of its
+ * start and only noise is left. The fit recovers the truth (4 standard errors), counts every
+ * sample (n = 2 x nused, dof = n - 4) and its noise from the residuals, sqrt(rss / dof) (common
+ * practice), matches the sigma the noise was drawn with to 2 % (its standard error is
+ * 1/sqrt(2 x 80000) = 0.25 %): the samples after the decay enter the residual sum although the
+ * solver need not evaluate the model there. */
+START_TEST(test_long_gate)
+{
+    const double dt = 1e-9, sigma = 0.02, lo = 384.2e12;
+    comp_truth c = {0, lo + 2.5e6, 2 * PI_T * 1e6, 0, 1.0, 0.4};
+    cs_record *rec = new_record(40000, 1, dt, 0.0);
+    add_model(rec, &c, 1, lo, 0.0);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 7);
+    add_noise(rec, rng, sigma);
+    gsl_rng_free(rng);
+    cs_gate g = make_gate("rect", 0.0, 40000 * dt);
+    cs_gatefit_result *r = NULL;
+    cs_error err;
+    ck_assert_msg(cs_gatefit_run(NULL, rec, &g, "decay", lo, NULL, &r, &err) == CS_OK, "%s", err.msg);
+    const cs_gatefit_component *q = &r->comp[0];
+    CHECK_ABS(q->center_hz, c.f, 4.0, q->center_hz_err, "centre");
+    CHECK_ABS(q->gamma_per_s, c.rate, 4.0, q->gamma_per_s_err, "gamma");
+    CHECK_ABS(r->noise_sd, sigma, 0.02, sigma, "noise from the residuals");
+    ck_assert_uint_eq(r->nused, 40000);
+    ck_assert_uint_eq(r->n, 2 * r->nused);
+    ck_assert_uint_eq(r->dof, r->n - 4);
+    cs_gatefit_result_free(r);
+    cs_record_free(rec);
+}
+END_TEST
+
 /* ---- the test: pulls of the gate-aware fit vs a plain Lorentzian ------------------ */
 
 /* 100 records of 2239 samples at 250 MS/s (dt = 4 ns), complex, LO 384.230484468 THz: a decay
@@ -1033,6 +1066,7 @@ static Suite *gatefit_suite(void)
     tc = tcase_create("exact");
     tcase_add_loop_test(tc, test_exact, 0, N_OF(exact_cases));
     tcase_add_test(tc, test_param_names);
+    tcase_add_test(tc, test_long_gate);
     suite_add_tcase(s, tc);
 
     tc = tcase_create("spectrum");

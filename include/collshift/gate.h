@@ -125,12 +125,19 @@ typedef enum cs_gate_fft_kind {
     CS_GATE_FFT_C2R           /* complex -> real backward: n/2 + 1 complex in, n reals out */
 } cs_gate_fft_kind;
 
+/* The plan cache keeps the CS_GATE_PLAN_MAX most recently used plans: a campaign whose gates
+ * have ever new lengths would otherwise keep a plan (and its twiddle tables) for every length it
+ * ever met, so memory would grow with the number of records; the least recently used plan is
+ * destroyed (under the planner mutex) to make room. */
+#define CS_GATE_PLAN_MAX 32
+
 /* The cached plan for (n, kind, in_place != 0), created if absent, returned as an opaque handle
- * whose only use is identity (the same pointer for the same key while ws lives). NULL when
- * n == 0, n > INT_MAX, kind is invalid or planning failed; then *err says why. */
+ * whose only use is identity (the same pointer for the same key while it stays in the cache,
+ * i.e. while it is among the CS_GATE_PLAN_MAX most recently used). NULL when n == 0,
+ * n > INT_MAX, kind is invalid or planning failed; then *err says why. */
 const void *cs_gate_plan(cs_gate_workspace *ws, size_t n, cs_gate_fft_kind kind, int in_place,
                          cs_error *err);
-/* Number of plans in the cache. */
+/* Number of plans in the cache (at most CS_GATE_PLAN_MAX). */
 size_t cs_gate_plan_count(const cs_gate_workspace *ws);
 
 /* Execute the cached transform of length n on caller arrays of interleaved (re, im) doubles

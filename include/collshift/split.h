@@ -24,7 +24,9 @@
  *      broad + narrow plain model (default "sech2+lorentz" plus a constant floor): its broadest
  *      component stands for the burst era and its narrowest for the tail era; (b) the matrix
  *      pencil (pencil.h) of the tail gate's samples up to the point where the envelope fades
- *      into the noise, whose strongest decaying component stands for the tail era. For the
+ *      into the noise (automatic order up to CS_SPLIT_PENCIL_MAX), whose strongest decaying
+ *      component stands for the tail era and also starts the tail era's gate-aware fit when
+ *      that is a single decay (its starting values only: the fit's optimum is its own). For the
  *      centre and the FWHM of each era the agreement with the gated fit is reported as
  *          z = |x1 - x2| / sqrt(s1^2 + s2^2)
  *      (the difference in combined standard errors), flagged when z > agree_nsigma (3). The
@@ -121,7 +123,8 @@ const char *cs_split_era_name(cs_split_era e);
 
 /* Longest model text and gate text kept. */
 #define CS_SPLIT_TEXT_MAX 128
-/* Most pencil components kept per shot. */
+/* Most pencil components kept per shot; the pencil's automatic order is capped at this many
+ * (twice this for real records, whose lines come as +- pairs). */
 #define CS_SPLIT_PENCIL_MAX 4
 
 /* Outcome of one era, of one shot, or of a whole run (the worst of its parts). */
