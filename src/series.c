@@ -58,11 +58,71 @@ int cs_series_parallel_available(void)
 #endif
 }
 
+/* Not measured: numbers NaN (what is known of the fits stays). */
 static void line_nan(cs_series_line *l)
 {
     l->ok = 0;
     l->center_hz = l->center_hz_err = l->shift_hz = l->shift_hz_err = NAN;
     l->fwhm_hz = l->fwhm_hz_err = l->area = l->area_err = NAN;
+}
+
+static void line_reset(cs_series_line *l)
+{
+    line_nan(l);
+    l->nfits = 0;
+    l->fit_status = CS_FIT_CONVERGED;
+    l->at_bound[0] = '\0';
+}
+
+/* Order of badness of fit statuses (worst wins when shots are combined). */
+static int status_rank(cs_fit_status s)
+{
+    switch (s) {
+    case CS_FIT_CONVERGED: return 0;
+    case CS_FIT_SINGULAR: return 1;
+    case CS_FIT_NOT_CONVERGED: return 2;
+    case CS_FIT_MODEL_NAN: return 3;
+    case CS_FIT_BAD_INPUT: return 4;
+    }
+    return 5;
+}
+
+static void note_status(cs_series_line *l, cs_fit_status s)
+{
+    if (l->nfits == 0 || status_rank(s) > status_rank(l->fit_status))
+        l->fit_status = s;
+    l->nfits++;
+}
+
+/* Add "NAME:lower" or "NAME:upper" to l->at_bound unless the name is there already. */
+static void note_bound(cs_series_line *l, const char *name, int at)
+{
+    char item[64];
+    snprintf(item, sizeof item, "%s:%s", name, at == 1 ? "lower" : "upper");
+    size_t n = strlen(l->at_bound), k = strlen(item);
+    for (const char *p = l->at_bound; (p = strstr(p, item)) != NULL; p += k)
+        if ((p == l->at_bound || p[-1] == ';') && (p[k] == ';' || p[k] == '\0'))
+            return;
+    if (n >= 3 && strcmp(l->at_bound + n - 3, "...") == 0)
+        return;   /* full */
+    if (n + (n ? 1 : 0) + k + 4 > sizeof l->at_bound) {
+        snprintf(l->at_bound + n, sizeof l->at_bound - n, "%s...", n ? ";" : "");
+        return;
+    }
+    snprintf(l->at_bound + n, sizeof l->at_bound - n, "%s%s", n ? ";" : "", item);
+}
+
+/* The parameters of component c of m (and of its baseline) that r has at a bound. */
+static void note_bounds(cs_series_line *l, const cs_model *m, const cs_fit_result *r, size_t c)
+{
+    if (!m || !r || !r->at_bound || c >= m->ncomp)
+        return;
+    const cs_model_component *mc = &m->comp[c];
+    for (size_t i = 0; i < m->nparams && i < r->nparams; i++) {
+        int mine = (i >= mc->first && i < mc->first + mc->type->nparams) || i >= m->base_first;
+        if (mine && (r->at_bound[i] == 1 || r->at_bound[i] == 2))
+            note_bound(l, m->par[i].name, r->at_bound[i]);
+    }
 }
 
 static void entry_reset(cs_series_entry *e)
@@ -76,7 +136,7 @@ static void entry_reset(cs_series_entry *e)
     e->density_source = CS_SERIES_DENSITY_NONE;
     e->ref_used_hz = NAN;
     for (int k = 0; k < CS_SPLIT_NERA; k++)
-        line_nan(&e->era_line[k]);
+        line_reset(&e->era_line[k]);
 }
 
 static void entry_fail(cs_series_entry *e, const cs_error *err, int code)
@@ -157,6 +217,11 @@ static int run_spectrum(cs_series_entry *e, const cs_spectrum *sp, const cs_seri
         cs_model_free(m);
         return rc == CS_OK ? CS_EDATA : rc;
     }
+    for (int k = 0; k < CS_SPLIT_NERA; k++) {
+        int want = e->era < 0 ? (m->ncomp >= 2 || k == CS_SPLIT_TAIL) : e->era == k;
+        if (want)
+            note_status(&e->era_line[k], r->status);
+    }
     if (r->status != CS_FIT_CONVERGED && r->status != CS_FIT_SINGULAR) {
         rc = cs_error_set(err, CS_ENOCONV, e->path, -1, -1, "fit of '%s': %s", p->model,
                           cs_fit_status_name(r->status));
@@ -185,14 +250,16 @@ static int run_spectrum(cs_series_entry *e, const cs_spectrum *sp, const cs_seri
             l->fwhm_hz_err = d->err[CS_PROFILE_FWHM];
             l->area = r->value[first + np - 1];
             l->area_err = r->err[first + np - 1];
+            note_bounds(l, m, r, c);
             l->ok = isfinite(l->center_hz) && l->center_hz_err > 0 && isfinite(l->fwhm_hz) &&
                     l->fwhm_hz_err > 0;
             if (!l->ok) {
                 line_nan(l);
                 if (rc == CS_OK)
                     rc = cs_error_set(err, CS_ENOCONV, e->path, -1, -1,
-                                      "%s era: the fit does not determine the line (%s)",
-                                      cs_split_era_name((cs_split_era)k), cs_fit_status_name(r->status));
+                                      "%s era: the fit does not determine the line (%s%s%s)",
+                                      cs_split_era_name((cs_split_era)k), cs_fit_status_name(r->status),
+                                      l->at_bound[0] ? "; at a bound: " : "", l->at_bound);
             }
         }
     }
@@ -254,6 +321,15 @@ static int run_records(cs_series_entry *e, const cs_loaded *l, const cs_series_p
         if (e->era >= 0 && e->era != k)
             continue;
         cs_series_line *ln = &e->era_line[k];
+        for (size_t i = 0; i < res->nshots; i++) {
+            const cs_split_fit *f = &res->shots[i].era[k];
+            if (f->gfit) {
+                note_status(ln, f->gfit->status);
+            } else if (f->pfit) {
+                note_status(ln, f->pfit->status);
+                note_bounds(ln, f->pmodel, f->pfit, f->component);
+            }
+        }
         combine(res, k, offsetof(cs_split_line, center_hz), offsetof(cs_split_line, center_hz_err),
                 &ln->center_hz, &ln->center_hz_err, x, x + nrec);
         combine(res, k, offsetof(cs_split_line, fwhm_hz), offsetof(cs_split_line, fwhm_hz_err),

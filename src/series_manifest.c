@@ -28,7 +28,7 @@ static char *dupstr(const char *s)
     return d;
 }
 
-/* Trim spaces in place; strip one pair of surrounding double quotes. */
+/* Trim spaces in place. */
 static char *trim(char *s)
 {
     while (isspace((unsigned char)*s))
@@ -36,30 +36,72 @@ static char *trim(char *s)
     size_t n = strlen(s);
     while (n && isspace((unsigned char)s[n - 1]))
         s[--n] = '\0';
-    if (n >= 2 && s[0] == '"' && s[n - 1] == '"') {
-        s[n - 1] = '\0';
-        s++;
-    }
     return s;
 }
 
-/* Split line (modified) on commas into at most max fields; returns the count (max + 1 = too many). */
-static size_t split_fields(char *line, char **f, size_t max)
+/* Split one line (modified in place) into at most max fields, RFC 4180: fields are separated by
+ * commas; a field that starts with a double quote (after spaces) runs to the next quote that is
+ * not doubled, may hold commas, and has its doubled quotes made single; spaces around a field
+ * are dropped (inside quotes they are kept). The line holds no line break: a quote that is not
+ * closed on it is refused (a field spanning lines would be a file name with a line break).
+ * line_off: byte offset of the line in the manifest, for messages. Returns the number of fields
+ * (max + 1: too many), or a negative CS_* code with err filled. */
+static long split_fields(char *line, char **f, size_t max, const char *mname, long ln, long long line_off,
+                         cs_error *err)
 {
     size_t n = 0;
     char *p = line;
     for (;;) {
-        char *c = strchr(p, ',');
-        if (c)
-            *c = '\0';
+        while (isspace((unsigned char)*p))
+            p++;
+        char *field;
+        int quoted = *p == '"';
+        if (quoted) {
+            char *open = p;
+            field = ++p;
+            char *w = p;
+            for (;;) {
+                if (*p == '\0')
+                    return cs_error_set(err, CS_EFORMAT, mname, ln, line_off + (open - line),
+                                        "field %zu: the quote opened at column %ld is not closed on this "
+                                        "line (a line break inside a quoted field is not supported)",
+                                        n + 1, (long)(open - line) + 1);
+                if (*p == '"') {
+                    if (p[1] != '"')
+                        break;
+                    p++;   /* "" stands for one quote */
+                }
+                *w++ = *p++;
+            }
+            p++;   /* past the closing quote */
+            *w = '\0';   /* w < p: writing here never touches what is still to be read */
+            while (isspace((unsigned char)*p))
+                p++;
+            if (*p != ',' && *p != '\0')
+                return cs_error_set(err, CS_EFORMAT, mname, ln, line_off + (p - line),
+                                    "field %zu: text after the closing quote at column %ld (quote the "
+                                    "whole field and double the quotes inside it)", n + 1, (long)(p - line) + 1);
+        } else {
+            field = p;
+            while (*p && *p != ',') {
+                if (*p == '"')
+                    return cs_error_set(err, CS_EFORMAT, mname, ln, line_off + (p - line),
+                                        "field %zu: a double quote at column %ld inside an unquoted field "
+                                        "(quote the whole field and double the quotes inside it)",
+                                        n + 1, (long)(p - line) + 1);
+                p++;
+            }
+        }
+        int last = *p != ',';
+        if (!last)
+            *p++ = '\0';
         if (n < max)
-            f[n] = trim(p);
+            f[n] = quoted ? field : trim(field);
         n++;
-        if (!c)
+        if (last)
             break;
-        p = c + 1;
     }
-    return n > max ? max + 1 : n;
+    return n > max ? (long)max + 1 : (long)n;
 }
 
 void cs_series_free(cs_series *s)
@@ -196,11 +238,18 @@ int cs_series_manifest_parse(const char *text, const char *name, const char *dir
         size_t len = strlen(line);
         if (len && line[len - 1] == '\r')
             line[len - 1] = '\0';
-        char *t = trim(line);
+        const char *t = line;
+        while (isspace((unsigned char)*t))
+            t++;
         if (!t[0] || t[0] == '#')
             continue;
         char *f[MAX_FIELDS];
-        size_t nf = split_fields(t, f, MAX_FIELDS);
+        long nfl = split_fields(line, f, MAX_FIELDS, mname, ln, (long long)(line - buf), err);
+        if (nfl < 0) {
+            rc = (int)nfl;
+            break;
+        }
+        size_t nf = (size_t)nfl;
         if (nf > MAX_FIELDS) {
             rc = cs_error_set(err, CS_EFORMAT, mname, ln, -1, "more than %d columns", MAX_FIELDS);
             break;

@@ -120,6 +120,9 @@ int cs_series_regress(const cs_series *s, unsigned flags, cs_series_regression *
             }
             r->relative = relative;
             r->status = cs_series_linfit(x, y, sg, m, flags, &r->fit, NULL);
+            /* points whose error is undefined get no weight at all (never a made-up one) */
+            for (size_t i = 0; i < m; i++)
+                r->left_out += !(isfinite(sg[i]) && sg[i] > 0);
         }
     }
     free(x);

@@ -179,6 +179,14 @@ static const struct {
     {"file,density_cm^-3,shot\na.csv,3e13,x\n", CS_EINVAL, 2, "shot 'x'"},
     {"file,density_cm^-3\n", CS_EFORMAT, -1, "lists no files"},
     {"# only a comment\n", CS_EFORMAT, -1, "no header"},
+    /* RFC 4180, section 2: a quoted field ends at a quote that is not doubled; one that never
+       ends on its line would hold a line break (refused: no file name holds one) */
+    {"file,density_cm^-3\n\"a.csv,3e13\n", CS_EFORMAT, 2, "not closed on this line"},
+    {"file,density_cm^-3\n\"a\nb.csv\",3e13\n", CS_EFORMAT, 2, "line break inside a quoted field"},
+    {"file,density_cm^-3\nb.csv,1e13\n\"a\"b.csv,3e13\n", CS_EFORMAT, 3, "text after the closing quote"},
+    /* RFC 4180, rule 5: a field holding a double quote must be enclosed in double quotes */
+    {"file,density_cm^-3\na\"b.csv,3e13\n", CS_EFORMAT, 2, "inside an unquoted field"},
+    {"\"file,density_cm^-3\na.csv,3e13\n", CS_EFORMAT, 1, "not closed"},
 };
 
 START_TEST(test_manifest_errors)
@@ -192,6 +200,159 @@ START_TEST(test_manifest_errors)
     ck_assert_int_eq(err.line, bad_manifests[_i].line);
     ck_assert_str_eq(err.file, "m.csv");
     ck_assert_msg(strstr(err.msg, bad_manifests[_i].words), "case %d: '%s'", _i, err.msg);
+}
+END_TEST
+
+/* RFC 4180 fields: quoted fields hold commas and doubled quotes (section 2, rules 6 and 7);
+ * spaces inside quotes are part of the field (rule 4); a header cell may be quoted too. */
+START_TEST(test_manifest_quoted)
+{
+    const char *text =
+        "\"file\",\"density_cm^-3\",era\n"
+        "\"a,b.csv\",3e13,tail\n"
+        "\"say \"\"hi\"\".csv\" , 4e13 ,\"burst\"\r\n"
+        "\" sp ace.csv \",5e13\n"
+        "\"\"\"\",6e13\n"
+        "plain.csv,\"7e13\"\n"
+        "\"x.csv\",\"8e13\",\"\"\n";
+    cs_series *s = NULL;
+    cs_error err;
+    cs_error_clear(&err);
+    ck_assert_msg(cs_series_manifest_parse(text, "m.csv", "/d", &s, &err) == CS_OK, "%s", err.msg);
+    ck_assert_uint_eq(s->n, 6);
+    ck_assert_str_eq(s->e[0].file, "a,b.csv");
+    ck_assert_str_eq(s->e[0].path, "/d/a,b.csv");
+    ck_assert_int_eq(s->e[0].era, CS_SPLIT_TAIL);
+    ck_assert_str_eq(s->e[1].file, "say \"hi\".csv");
+    ck_assert_int_eq(s->e[1].era, CS_SPLIT_BURST);
+    ck_assert(tu_close(s->e[1].density_m3, 4e19, 1e-12));
+    ck_assert_str_eq(s->e[2].file, " sp ace.csv ");
+    ck_assert_str_eq(s->e[3].file, "\"");
+    ck_assert_str_eq(s->e[4].file, "plain.csv");
+    ck_assert(tu_close(s->e[4].density_m3, 7e19, 1e-12));
+    ck_assert_str_eq(s->e[5].file, "x.csv");
+    ck_assert_int_eq(s->e[5].era, -1);   /* "" is an empty cell: not given */
+    ck_assert_int_eq(s->e[2].line, 4);
+    cs_series_free(s);
+
+    /* the message of a quote that is not closed names its line and the byte offset of the quote
+       in the manifest (common practice: point at where the problem starts) */
+    cs_error_clear(&err);
+    s = NULL;
+    ck_assert_int_eq(cs_series_manifest_parse("file,density_cm^-3\nok.csv,1e13\nb.csv,\"2e13\n", "m.csv", NULL,
+                                              &s, &err), CS_EFORMAT);
+    ck_assert_ptr_null(s);
+    ck_assert_int_eq(err.line, 3);
+    ck_assert_int_eq(err.offset, 19 + 12 + 6);
+    ck_assert_msg(strstr(err.msg, "field 2") && strstr(err.msg, "column 7"), "%s", err.msg);
+}
+END_TEST
+
+/* Regressions never weigh a point whose error is undefined (common practice: a weighted
+ * least-squares point has weight 1/sigma^2, which does not exist without sigma): it is left
+ * out and counted; a fit of the two other points has dof 0 and an undefined chi2/dof. */
+START_TEST(test_regress_undefined_error)
+{
+    cs_series *s = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_series_manifest_parse("file,density_cm^-3\na,1e13\nb,2e13\nc,3e13\n", "m", NULL, &s, &err),
+                     CS_OK);
+    for (size_t i = 0; i < 3; i++) {
+        cs_series_entry *e = &s->e[i];
+        e->status = CS_SERIES_OK;
+        e->density_used_m3 = e->density_m3;
+        for (int k = 0; k < CS_SPLIT_NERA; k++) {
+            cs_series_line *l = &e->era_line[k];
+            l->ok = 1;
+            l->center_hz = 1e9 + 100.0 * (double)i;
+            l->center_hz_err = 1.0;
+            l->shift_hz = l->shift_hz_err = NAN;
+            l->fwhm_hz = 1e6 + 10.0 * (double)i;
+            l->fwhm_hz_err = i == 1 ? NAN : 2.0;   /* the middle point: error undefined */
+            l->area = l->area_err = NAN;
+        }
+    }
+    cs_series_regression reg[CS_SPLIT_NERA * CS_SERIES_NQ];
+    ck_assert_int_eq(cs_series_regress(s, 0, reg), CS_OK);
+    for (int k = 0; k < CS_SPLIT_NERA; k++) {
+        const cs_series_regression *rc_ = &reg[k * CS_SERIES_NQ + CS_SERIES_Q_CENTER];
+        const cs_series_regression *rw = &reg[k * CS_SERIES_NQ + CS_SERIES_Q_FWHM];
+        ck_assert_uint_eq(rc_->fit.n, 3);
+        ck_assert_uint_eq(rc_->left_out, 0);
+        ck_assert_int_eq(rw->status, CS_OK);
+        ck_assert_uint_eq(rw->fit.n, 2);
+        ck_assert_uint_eq(rw->left_out, 1);
+        ck_assert_uint_eq(rw->fit.dof, 0);
+        ck_assert(isnan(rw->fit.redchi2));
+        /* two points: the line through them, 10 Hz per 1e13 cm^-3 */
+        ck_assert(tu_close(rw->fit.slope, 10.0 / 1e13, 1e-9));
+    }
+    cs_series_free(s);
+}
+END_TEST
+
+/* Spectra whose fits end at a bound or with a singular covariance: the era lines say so. A
+ * Gaussian line fitted by a pseudo-Voigt has its best eta at 0, the lower end of [0, 1] (the
+ * pseudo-Voigt is eta L + (1 - eta) G; common practice); two identical Lorentzians fitted to one
+ * noise-free Lorentzian share its area in any proportion (singular covariance; common practice). */
+static double lorentz(double x, double c, double w, double a);
+
+static const char *write_line(const char *name, int gauss, double floor_ripple)
+{
+    size_t n = 600;
+    cs_spectrum *sp = cs_spectrum_alloc(n, 1);
+    ck_assert_ptr_nonnull(sp);
+    for (size_t i = 0; i < n; i++) {
+        double x = 0.7e9 + 1e6 * (double)i, u = x - 1e9, w = 30e6;
+        double sg = w / 2.3548200450309493;
+        double y = gauss ? 1e7 / (sg * sqrt(2 * 3.14159265358979323846)) * exp(-u * u / (2 * sg * sg))
+                         : lorentz(x, 1e9, w, 1e7);
+        sp->freq_hz[i] = x;
+        sp->y[i] = y + floor_ripple * (1.0 + sin(0.77 * (double)i));
+        sp->sigma[i] = 0.001;
+    }
+    const char *path = tu_tmp_path(name);
+    cs_error err;
+    ck_assert_int_eq(cs_io_text_write_spectrum(path, sp, &err), CS_OK);
+    cs_spectrum_free(sp);
+    return path;
+}
+
+START_TEST(test_fit_status_entries)
+{
+    write_line("fs_gauss.csv", 1, 0.001);
+    write_line("fs_single.csv", 0, 0.0);
+    const char *m = tu_write_text("fs_manifest.csv", "file,density_cm^-3\nfs_gauss.csv,1e13\n");
+    cs_series *s = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_series_manifest_load(m, &s, &err), CS_OK);
+    cs_series_params p;
+    cs_series_params_default(&p);
+    p.model = "pvoigt";
+    p.baseline = CS_BASELINE_CONST;
+    ck_assert_int_eq(cs_series_run(s, &p, &err), CS_OK);
+    const cs_series_line *t = &s->e[0].era_line[CS_SPLIT_TAIL];
+    ck_assert(t->ok);
+    ck_assert_uint_eq(t->nfits, 1);
+    ck_assert_int_eq(t->fit_status, CS_FIT_CONVERGED);
+    ck_assert_str_eq(t->at_bound, "1.eta:lower");
+    ck_assert_uint_eq(s->e[0].era_line[CS_SPLIT_BURST].nfits, 0);   /* one component: no burst era */
+    cs_series_free(s);
+
+    m = tu_write_text("fs_manifest2.csv", "file,density_cm^-3\nfs_single.csv,1e13\nnot_there.csv,2e13\n");
+    ck_assert_int_eq(cs_series_manifest_load(m, &s, &err), CS_OK);
+    p.model = "lorentz+lorentz";
+    ck_assert_int_eq(cs_series_run(s, &p, &err), CS_ENOCONV);
+    ck_assert_int_eq(s->e[0].status, CS_SERIES_FAILED);
+    for (int k = 0; k < CS_SPLIT_NERA; k++) {
+        const cs_series_line *l = &s->e[0].era_line[k];
+        ck_assert(!l->ok && isnan(l->center_hz));
+        ck_assert_uint_eq(l->nfits, 1);
+        ck_assert_int_eq(l->fit_status, CS_FIT_SINGULAR);
+        ck_assert_uint_eq(s->e[1].era_line[k].nfits, 0);   /* no file: no fit */
+    }
+    ck_assert_msg(strstr(s->e[0].message, "singular covariance"), "%s", s->e[0].message);
+    cs_series_free(s);
 }
 END_TEST
 
@@ -281,6 +442,11 @@ START_TEST(test_campaign)
     ck_assert(!s->e[NSPEC].era_line[0].ok && !s->e[NSPEC].era_line[1].ok);
     ck_assert_int_eq(s->e[0].density_source, CS_SERIES_DENSITY_MANIFEST);
     ck_assert(tu_close(s->e[0].ref_used_hz, REF_HZ, 1e-12));
+    for (int k = 0; k < CS_SPLIT_NERA; k++) {   /* one fit per spectrum behind each era */
+        ck_assert_uint_eq(s->e[0].era_line[k].nfits, 1);
+        ck_assert_int_eq(s->e[0].era_line[k].fit_status, CS_FIT_CONVERGED);
+        ck_assert_uint_eq(s->e[NSPEC].era_line[k].nfits, 0);
+    }
 
     cs_series_regression reg[CS_SPLIT_NERA * CS_SERIES_NQ];
     ck_assert_int_eq(cs_series_regress(s, 0, reg), CS_OK);
@@ -508,6 +674,8 @@ static Suite *series_suite(void)
     tcase_add_test(t, test_manifest_ok);
     tcase_add_loop_test(t, test_manifest_errors, 0, (int)(sizeof bad_manifests / sizeof bad_manifests[0]));
     tcase_add_test(t, test_manifest_load_missing);
+    tcase_add_test(t, test_manifest_quoted);
+    tcase_add_test(t, test_regress_undefined_error);
     tcase_add_test(t, test_shard_merge);
     suite_add_tcase(s, t);
     t = tcase_create("campaign");
@@ -515,6 +683,7 @@ static Suite *series_suite(void)
     tcase_add_test(t, test_campaign);
     tcase_add_test(t, test_campaign_era);
     tcase_add_test(t, test_stop_resume);
+    tcase_add_test(t, test_fit_status_entries);
     suite_add_tcase(s, t);
     return s;
 }

@@ -13,7 +13,10 @@
  *   shot          0-based shot index inside a file of several records (default: every shot)
  *   era           "burst" or "tail": the entry measures that era only (see below)
  *   reference     reference frequency for shifts ("reference_GHz", or "9.1 GHz")
- * An empty cell means "not given". Fields are not quoted (a file name cannot hold a comma).
+ * An empty cell means "not given". Fields follow RFC 4180: a field in double quotes may hold
+ * commas and doubled quotes ("a,""b"".csv" is the name a,"b".csv); spaces around an unquoted
+ * field are trimmed, those inside quotes kept. A line break inside quotes is refused (a file
+ * name cannot hold one), as are text after a closing quote and a quote inside an unquoted field.
  * The density of an entry is, in this order: the manifest's density; the vapour density at the
  * manifest's temperature (cs_vapour_density, element from cs_series_params.element); the file's
  * 'density' metadata; the vapour density at the file's 'temperature' metadata. Without any of
@@ -77,13 +80,25 @@ typedef enum cs_series_density_source {
 /* "none", "manifest", "manifest temperature", "file metadata", "file temperature". */
 const char *cs_series_density_source_name(cs_series_density_source s);
 
-/* One era's line of one entry. Numbers are NaN unless ok. */
+/* Longest at_bound text kept (longer lists end in "..."). */
+#define CS_SERIES_AT_BOUND_MAX 160
+
+/* One era's line of one entry. Numbers are NaN unless ok; an error is NaN (with ok = 1) when the
+ * fit does not determine it (fit_status and at_bound say why). */
 typedef struct cs_series_line {
     int ok;
     double center_hz, center_hz_err;
     double shift_hz, shift_hz_err;    /* centre - reference; NaN without a reference */
     double fwhm_hz, fwhm_hz_err;
     double area, area_err;            /* split: energy; fit: the component's area */
+    /* the fit(s) behind the era, also when the era was not measured */
+    size_t nfits;                     /* fits that ran: 1 for a spectrum, one per shot for records
+                                         (0: none ran, fit_status is then meaningless) */
+    cs_fit_status fit_status;         /* the worst of them: converged < singular covariance <
+                                         not converged < model not finite */
+    char at_bound[CS_SERIES_AT_BOUND_MAX]; /* parameters of the era's component (and the
+                                         baseline) at a bound, "NAME:lower;NAME:upper" in model
+                                         order, each name once over the shots; "" when none */
 } cs_series_line;
 
 /* One manifest row and its results. */
@@ -123,7 +138,8 @@ typedef struct cs_series {
 /* Parse manifest text. name: used in messages (may be NULL); dir: folder the file names are
  * relative to (NULL: "."). Returns CS_OK and *out (caller frees with cs_series_free);
  * CS_EFORMAT (no header, no 'file' column, a row with more fields than the header, an empty file
- * name, no data rows), CS_EUNIT (a value without or with a wrong unit), CS_EINVAL (a bad number,
+ * name, no data rows, a quote not closed on its line, text after a closing quote, a quote inside an
+ * unquoted field: then err->offset is the byte offset of the quote or text), CS_EUNIT (a value without or with a wrong unit), CS_EINVAL (a bad number,
  * shot or era; NULL text or out), CS_ERANGE (a non-positive density, temperature or thickness),
  * CS_ENOMEM. The message names the manifest and err->line its line. */
 int cs_series_manifest_parse(const char *text, const char *name, const char *dir, cs_series **out,
@@ -237,11 +253,14 @@ typedef struct cs_series_regression {
     cs_series_quantity quantity;
     int relative;                     /* 1: y was the shift (centre - reference), 0: the centre */
     int status;                       /* CS_OK, or CS_EDATA (too few points: numbers NaN) */
+    size_t left_out;                  /* measured points left out because their error is undefined
+                                         (weighted fits never give them a made-up weight) */
     cs_series_linear fit;
 } cs_series_regression;
 
 /* Fill out[era * CS_SERIES_NQ + quantity] (CS_SPLIT_NERA x CS_SERIES_NQ entries) from the
- * entries' results. flags: CS_SERIES_FIT_*. Returns CS_OK (also when some regression has too few
+ * entries' results: every measured line (ok) with a density; one whose error of the fitted
+ * quantity is not finite and > 0 is left out and counted in left_out. flags: CS_SERIES_FIT_*. Returns CS_OK (also when some regression has too few
  * points: its status says so) or CS_EINVAL. */
 int cs_series_regress(const cs_series *s, unsigned flags, cs_series_regression *out);
 

@@ -112,6 +112,21 @@ void cli_bprintf(cli_buf *b, const char *fmt, ...)
     ;
 /* A JSON number, or null for NaN/Inf (numbers that could not be computed are never numbers). */
 json_t *cli_jnum(double v);
+/* Strings from bytes (file names, paths, messages quoting them): JSON strings are Unicode text
+ * (RFC 8259, section 7; jansson refuses anything else), but a file name is any bytes.
+ * cli_utf8_valid: 1 when bytes are well-formed UTF-8 (Unicode Standard, Table 3-7).
+ * cli_jstring: a JSON string of bytes; valid UTF-8 is kept as it is, and each maximal subpart of
+ *   an ill-formed sequence becomes one U+FFFD REPLACEMENT CHARACTER (Unicode Standard, section
+ *   3.9, "U+FFFD Substitution of Maximal Subparts"); NULL gives JSON null. Never fails.
+ * cli_json_set_path: sets KEY to cli_jstring(bytes) and, only when bytes are not valid UTF-8,
+ *   KEY_bytes to the exact bytes: valid UTF-8 kept, '%' and every byte of an ill-formed sequence
+ *   written as %XX (two upper-case hex digits, as in RFC 3986 percent-encoding).
+ * cli_json_get_path: the exact bytes of such a field back (KEY_bytes decoded when present, else
+ *   KEY), malloc'd; NULL when the object has no string KEY or out of memory. */
+int cli_utf8_valid(const char *bytes);
+json_t *cli_jstring(const char *bytes);
+void cli_json_set_path(json_t *obj, const char *key, const char *bytes);
+char *cli_json_get_path(const json_t *obj, const char *key);
 /* The fields of a gate-aware component (profile, centre, FWHM, rate or tau and peak time,
  * amplitude, phase, each with its error) set on the JSON object jc. */
 void cli_gatefit_component_json(const cs_gatefit_component *c, json_t *jc);

@@ -226,6 +226,148 @@ json_t *cli_jnum(double v)
     return isfinite(v) ? json_real(v) : json_null();
 }
 
+/* Length of the well-formed UTF-8 sequence at p (Unicode Standard, chapter 3, Table 3-7:
+ * well-formed byte sequences; no overlong forms, no surrogates, nothing above U+10FFFF), or 0
+ * when it is ill-formed; *sub then gets the length of its maximal subpart (at least 1): the
+ * longest start of a well-formed sequence, which one U+FFFD replaces (section 3.9). */
+static size_t utf8_seq(const unsigned char *p, size_t *sub)
+{
+    unsigned char c = p[0];
+    size_t need;
+    unsigned char lo = 0x80, hi = 0xBF;   /* range of the second byte */
+    if (c < 0x80) {
+        return 1;
+    } else if (c >= 0xC2 && c <= 0xDF) {
+        need = 2;
+    } else if (c >= 0xE0 && c <= 0xEF) {
+        need = 3;
+        if (c == 0xE0)
+            lo = 0xA0;
+        else if (c == 0xED)
+            hi = 0x9F;
+    } else if (c >= 0xF0 && c <= 0xF4) {
+        need = 4;
+        if (c == 0xF0)
+            lo = 0x90;
+        else if (c == 0xF4)
+            hi = 0x8F;
+    } else {
+        *sub = 1;
+        return 0;
+    }
+    for (size_t k = 1; k < need; k++) {
+        unsigned char b = p[k];
+        int good = k == 1 ? (b >= lo && b <= hi) : (b >= 0x80 && b <= 0xBF);
+        if (!good) {
+            *sub = k;
+            return 0;
+        }
+    }
+    return need;
+}
+
+int cli_utf8_valid(const char *bytes)
+{
+    const unsigned char *p = (const unsigned char *)bytes;
+    while (p && *p) {
+        size_t sub, k = utf8_seq(p, &sub);
+        if (!k)
+            return 0;
+        p += k;
+    }
+    return 1;
+}
+
+/* bytes as text: valid UTF-8 kept; each maximal subpart of an ill-formed sequence as `bad`
+ * (pct: %XX of its bytes instead); pct also writes '%' as %25. Returns a malloc'd string. */
+static char *utf8_clean(const char *bytes, int pct)
+{
+    const unsigned char *p = (const unsigned char *)bytes;
+    size_t n = strlen(bytes);
+    char *out = malloc(3 * n + 1);   /* U+FFFD (3 bytes) or %XX per bad byte at most */
+    if (!out)
+        return NULL;
+    size_t o = 0;
+    while (*p) {
+        size_t sub, k = utf8_seq(p, &sub);
+        if (k && !(pct && *p == '%')) {
+            memcpy(out + o, p, k);
+            o += k;
+            p += k;
+        } else if (pct) {
+            size_t m = k ? k : sub;
+            for (size_t i = 0; i < m; i++)
+                o += (size_t)snprintf(out + o, 4, "%%%02X", p[i]);
+            p += m;
+        } else {
+            memcpy(out + o, "\xEF\xBF\xBD", 3);   /* U+FFFD REPLACEMENT CHARACTER */
+            o += 3;
+            p += sub;
+        }
+    }
+    out[o] = '\0';
+    return out;
+}
+
+json_t *cli_jstring(const char *bytes)
+{
+    if (!bytes)
+        return json_null();
+    json_t *j = json_string(bytes);
+    if (j)
+        return j;
+    char *t = utf8_clean(bytes, 0);
+    j = t ? json_string(t) : NULL;
+    free(t);
+    return j ? j : json_string("");
+}
+
+void cli_json_set_path(json_t *obj, const char *key, const char *bytes)
+{
+    json_object_set_new(obj, key, cli_jstring(bytes));
+    if (!bytes || cli_utf8_valid(bytes))
+        return;
+    char *t = utf8_clean(bytes, 1);
+    char k2[128];
+    snprintf(k2, sizeof k2, "%s_bytes", key);
+    if (t)
+        json_object_set_new(obj, k2, json_string(t));
+    free(t);
+}
+
+static int hexval(int c)
+{
+    return c >= '0' && c <= '9' ? c - '0' : c >= 'A' && c <= 'F' ? c - 'A' + 10
+         : c >= 'a' && c <= 'f' ? c - 'a' + 10 : -1;
+}
+
+char *cli_json_get_path(const json_t *obj, const char *key)
+{
+    char k2[128];
+    snprintf(k2, sizeof k2, "%s_bytes", key);
+    const char *raw = json_string_value(json_object_get(obj, k2));
+    const char *t = raw ? raw : json_string_value(json_object_get(obj, key));
+    if (!t)
+        return NULL;
+    size_t n = strlen(t);
+    char *out = malloc(n + 1);
+    if (!out)
+        return NULL;
+    size_t o = 0;
+    for (size_t i = 0; i < n; i++) {
+        int h1, h2;
+        if (raw && t[i] == '%' && i + 2 < n && (h1 = hexval(t[i + 1])) >= 0 &&
+            (h2 = hexval(t[i + 2])) >= 0 && (h1 || h2)) {
+            out[o++] = (char)(h1 * 16 + h2);
+            i += 2;
+        } else {
+            out[o++] = t[i];
+        }
+    }
+    out[o] = '\0';
+    return out;
+}
+
 void cli_gatefit_component_json(const cs_gatefit_component *c, json_t *jc)
 {
     json_object_set_new(jc, "profile", json_string(cs_gatefit_kind_name(c->kind)));

@@ -485,7 +485,7 @@ static json_t *report_fit(const char *path, const cs_model *m, const cs_fit_resu
                num_text(r->rms, "%.4g", n5, sizeof n5));
     }
     json_t *o = json_object();
-    json_object_set_new(o, "file", json_string(path));
+    cli_json_set_path(o, "file", path);
     json_object_set_new(o, "status", json_string(cs_fit_status_name(r->status)));
     json_object_set_new(o, "stop_reason", json_string(cs_fit_stop_name(r->stop)));
     json_object_set_new(o, "model", json_string(m->text));
@@ -759,7 +759,7 @@ static int plot_fit(const char *file, const cs_model *m, const cs_fit_result *r,
     if (cs_plot_spectrum(file, &d, &o, &err) != CS_OK)
         rc = cli_plot_failed(file, &err);
     else
-        json_array_append_new(figures, json_string(file));
+        json_array_append_new(figures, cli_jstring(file));
 done:
     free(p); free(q); free(total); free(work); free(comp); free(cptr); free(labels); free(lptr);
     return rc;

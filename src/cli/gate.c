@@ -286,7 +286,7 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
     json_t *o = json_object();
     if (!m) {
         json_object_set_new(o, "status", json_string("failed"));
-        json_object_set_new(o, "message", json_string(err.msg));
+        json_object_set_new(o, "message", cli_jstring(err.msg));
         return o;
     }
     cs_fit_parameters par = cs_fit_default_parameters();
@@ -295,7 +295,7 @@ static json_t *fit_gated(const char *list, const cs_gated_spectrum *gs, int quie
     int rc = cs_fit_run(NULL, m, gs->psd->freq_hz, gs->psd->y, gs->psd->sigma, NULL, gs->psd->n, &par, &r, &err);
     if (!r) {
         json_object_set_new(o, "status", json_string("failed"));
-        json_object_set_new(o, "message", json_string(err.msg));
+        json_object_set_new(o, "message", cli_jstring(err.msg));
         if (!quiet)
             printf("      fit %s: failed: %s\n", list, err.msg);
         if (*worst == CLI_EXIT_OK)
@@ -358,7 +358,7 @@ static json_t *gatefit_gate(cs_gate_workspace *ws, const cs_record *rec, const c
     json_object_set_new(jo, "method", json_string("gate-aware: least squares on the gate's samples"));
     if (!r) {
         json_object_set_new(jo, "status", json_string("failed"));
-        json_object_set_new(jo, "message", json_string(err.msg));
+        json_object_set_new(jo, "message", cli_jstring(err.msg));
         if (!quiet)
             printf("      fit %s: failed: %s\n", list, err.msg);
         if (*worst == CLI_EXIT_OK)
@@ -490,7 +490,7 @@ static int plot_envelope_fig(const char *file, const cs_envelope *env, const cs_
     if (cs_plot_envelope(file, &d, &o, &err) != CS_OK)
         rc = cli_plot_failed(file, &err);
     else
-        json_array_append_new(figures, json_string(file));
+        json_array_append_new(figures, cli_jstring(file));
     free(t);
     return rc;
 }
@@ -503,13 +503,13 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
     cs_error_clear(&err);
     cs_loaded l;
     json_t *jf = json_object();
-    json_object_set_new(jf, "file", json_string(path));
+    cli_json_set_path(jf, "file", path);
     if (cs_io_load(path, lo, &l, &err) != CS_OK) {
         int code = cli_report(&err);
         if (*worst == CLI_EXIT_OK || code > *worst)
             *worst = code;
         json_object_set_new(jf, "status", json_string("error"));
-        json_object_set_new(jf, "error", json_string(err.msg));
+        json_object_set_new(jf, "error", cli_jstring(err.msg));
         return jf;
     }
     if (l.kind != CS_KIND_RECORD) {
@@ -635,7 +635,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
         if (rc != CS_OK) {
             cli_errorf("'%s': gate '%s': %s", path, gates[k].name, err.msg);
             *worst = cli_exit_code(rc) > *worst ? cli_exit_code(rc) : *worst;
-            json_object_set_new(o, "status", json_string(err.msg));
+            json_object_set_new(o, "status", cli_jstring(err.msg));
             json_array_append_new(jg, o);
             continue;
         }
@@ -669,7 +669,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
                 if (*worst == CLI_EXIT_OK)
                     *worst = w;
             } else {
-                json_object_set_new(o, "output", json_string(name));
+                cli_json_set_path(o, "output", name);
             }
         }
         if (go->fit)
@@ -712,7 +712,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
             cli_errorf("'%s': spectrogram: %s", path, err.msg);
             *worst = cli_exit_code(err.code) > *worst ? cli_exit_code(err.code) : *worst;
         } else if (go->spectrogram) {
-            json_object_set_new(jf, "spectrogram", json_string(name));
+            cli_json_set_path(jf, "spectrogram", name);
         }
         if (go->plot_sg && sg) {
             char fig[1024];
@@ -735,7 +735,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
                 if (w > *worst)
                     *worst = w;
             } else {
-                json_array_append_new(figures, json_string(fig));
+                json_array_append_new(figures, cli_jstring(fig));
             }
         }
         cs_spectrogram_free(sg);

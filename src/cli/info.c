@@ -48,8 +48,8 @@ static json_t *meta_json(const cs_meta *m)
     for (size_t i = 0; i < m->n; i++) {
         const cs_meta_entry *e = &m->e[i];
         json_t *v = json_object();
-        json_object_set_new(v, "text", json_string(e->text ? e->text : ""));
-        json_object_set_new(v, "unit", json_string(e->unit ? e->unit : ""));
+        json_object_set_new(v, "text", cli_jstring(e->text ? e->text : ""));
+        json_object_set_new(v, "unit", cli_jstring(e->unit ? e->unit : ""));
         if (e->has_number) {
             json_object_set_new(v, "value", cli_jnum(e->value));
             if (e->dim != CS_DIM_UNKNOWN) {
@@ -125,7 +125,7 @@ static json_t *describe_spectrum(const cs_spectrum *s)
     json_object_set_new(o, "x_unit_assumed", json_boolean(s->x_unit_assumed));
     json_object_set_new(o, "air", json_boolean(s->conv.air));
     json_object_set_new(o, "jacobian_applied", json_boolean(s->conv.jacobian_applied));
-    json_object_set_new(o, "y_name", json_string(s->y_name));
+    json_object_set_new(o, "y_name", cli_jstring(s->y_name));
     json_object_set_new(o, "has_sigma", json_boolean(s->sigma != NULL));
     json_object_set_new(o, "noise", isfinite(noise) ? json_real(noise) : json_null());
     print_meta(&s->meta);
@@ -214,9 +214,9 @@ int cmd_info(int argc, char **argv)
             if (code > worst || worst == CLI_EXIT_OK)
                 worst = code;
             json_t *f = json_object();
-            json_object_set_new(f, "path", json_string(path));
+            cli_json_set_path(f, "path", path);
             json_object_set_new(f, "status", json_string("error"));
-            json_object_set_new(f, "error", json_string(err.msg));
+            json_object_set_new(f, "error", cli_jstring(err.msg));
             if (err.line > 0)
                 json_object_set_new(f, "line", json_integer(err.line));
             if (err.offset >= 0)
@@ -227,7 +227,7 @@ int cmd_info(int argc, char **argv)
         printf("%s\n", path);
         printf("  format: %s, kind: %s\n", cs_format_name(l.format), cs_kind_name(l.kind));
         json_t *f = json_object();
-        json_object_set_new(f, "path", json_string(path));
+        cli_json_set_path(f, "path", path);
         json_object_set_new(f, "status", json_string("ok"));
         json_object_set_new(f, "format", json_string(cs_format_name(l.format)));
         json_object_set_new(f, "kind", json_string(cs_kind_name(l.kind)));

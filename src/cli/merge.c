@@ -85,7 +85,9 @@ static int read_shard(const char *path, const json_t *root, cs_series **out)
     cs_series *s = calloc(1, sizeof *s);
     size_t n = json_array_size(ents);
     if (s) {
-        s->manifest = dup_text(str(root, "manifest"));
+        s->manifest = cli_json_get_path(root, "manifest");
+        if (!s->manifest)
+            s->manifest = dup_text("");
         s->dir = dup_text(".");
         s->e = calloc(n ? n : 1, sizeof *s->e);
         s->total = (size_t)json_integer_value(jt);

@@ -51,31 +51,52 @@ static void line_from_json(const json_t *o, cs_series_line *l)
     l->area_err = jnum_or_nan(o, "area_err");
 }
 
-static char *dup_text(const char *t)
+/* The fit status and at-bound parameters of era `name` (entry fields "fit_status" and
+ * "at_bound", see series_entry_json); absent in files of older versions: no fit known. */
+static void fit_from_json(const json_t *o, const char *name, cs_series_line *l)
 {
-    if (!t)
-        t = "";
-    size_t n = strlen(t) + 1;
-    char *d = malloc(n);
-    if (d)
-        memcpy(d, t, n);
-    return d;
+    l->nfits = 0;
+    l->fit_status = CS_FIT_CONVERGED;
+    l->at_bound[0] = '\0';
+    const char *st = json_string_value(json_object_get(json_object_get(o, "fit_status"), name));
+    for (int k = CS_FIT_CONVERGED; st && k <= CS_FIT_BAD_INPUT; k++)
+        if (strcmp(st, cs_fit_status_name((cs_fit_status)k)) == 0) {
+            l->fit_status = (cs_fit_status)k;
+            l->nfits = 1;
+        }
+    const json_t *ab = json_object_get(json_object_get(o, "at_bound"), name);
+    size_t n = 0;
+    for (size_t i = 0; i < json_array_size(ab); i++) {
+        const json_t *x = json_array_get(ab, i);
+        const char *nm = jstr(x, "name"), *bd = jstr(x, "bound");
+        if (!nm)
+            continue;
+        int k = snprintf(l->at_bound + n, sizeof l->at_bound - n, "%s%s%s%s", n ? ";" : "", nm, bd ? ":" : "",
+                         bd ? bd : "");
+        if (k < 0 || (size_t)k >= sizeof l->at_bound - n)
+            break;
+        n += (size_t)k;
+    }
 }
 
 int series_entry_from_json(const json_t *o, cs_series_entry *e, const char **why)
 {
     memset(e, 0, sizeof *e);
     const json_t *ji = json_object_get(o, "index");
-    const char *file = jstr(o, "file"), *status = jstr(o, "status");
-    if (!json_is_object(o) || !json_is_integer(ji) || json_integer_value(ji) < 0 || !file || !status) {
+    const char *status = jstr(o, "status");
+    if (!json_is_object(o) || !json_is_integer(ji) || json_integer_value(ji) < 0 || !jstr(o, "file") ||
+        !status) {
         *why = "an entry without index, file or status (not written by 'collshift series'?)";
         return -1;
     }
     e->index = (size_t)json_integer_value(ji);
     e->line = (long)json_integer_value(json_object_get(o, "line"));
-    e->file = dup_text(file);
-    e->path = dup_text(file);
+    e->file = cli_json_get_path(o, "file");   /* the exact bytes, also of a name that is not UTF-8 */
+    e->path = cli_json_get_path(o, "file");
     if (!e->file || !e->path) {
+        free(e->file);
+        free(e->path);
+        e->file = e->path = NULL;
         *why = "out of memory";
         return -1;
     }
@@ -111,6 +132,7 @@ int series_entry_from_json(const json_t *o, cs_series_entry *e, const char **why
         if (era && strcmp(era, cs_split_era_name((cs_split_era)k)) == 0)
             e->era = k;
         line_from_json(json_object_get(o, cs_split_era_name((cs_split_era)k)), &e->era_line[k]);
+        fit_from_json(o, cs_split_era_name((cs_split_era)k), &e->era_line[k]);
     }
     return 0;
 }
@@ -261,7 +283,7 @@ static json_t *journal_header(const series_opts *so, const cs_series *s)
     json_t *h = json_object();
     json_object_set_new(h, JOURNAL_KEY, json_integer(1));
     json_object_set_new(h, "fingerprint", json_string(so->fingerprint));
-    json_object_set_new(h, "manifest", json_string(so->manifest));
+    cli_json_set_path(h, "manifest", so->manifest);
     json_object_set_new(h, "entries_total", json_integer((json_int_t)s->total));
     if (so->shard_n) {
         char b[64];
@@ -270,7 +292,7 @@ static json_t *journal_header(const series_opts *so, const cs_series *s)
     } else {
         json_object_set_new(h, "shard", json_null());
     }
-    json_object_set_new(h, "options", json_string(so->options ? so->options : ""));
+    json_object_set_new(h, "options", cli_jstring(so->options ? so->options : ""));
     return h;
 }
 

@@ -57,6 +57,15 @@ static void sb_num(sbuf *b, double v)
         sb_printf(b, ",");
 }
 
+/* A number cell at full precision; empty when undefined. */
+static void sb_num17(sbuf *b, double v)
+{
+    if (isfinite(v))
+        sb_printf(b, ",%.17g", v);
+    else
+        sb_printf(b, ",");
+}
+
 unsigned long long series_fnv1a(unsigned long long h, const void *data, size_t n)
 {
     const unsigned char *p = data;
@@ -115,14 +124,46 @@ static json_t *line_json(const cs_series_line *l)
     return o;
 }
 
+/* The fit status of an era for outputs: cs_fit_status_name, or "not fitted" when no fit ran. */
+static const char *series_fit_status_word(const cs_series_line *l)
+{
+    return l->nfits ? cs_fit_status_name(l->fit_status) : "not fitted";
+}
+
+/* at_bound text ("1.eta:lower;base.c0:upper", possibly ending in "...") as a JSON array of
+ * {"name", "bound"} objects, as in the JSON of 'collshift fit'. */
+static json_t *at_bound_json(const char *t)
+{
+    json_t *a = json_array();
+    while (t && *t) {
+        const char *end = strchr(t, ';');
+        size_t n = end ? (size_t)(end - t) : strlen(t);
+        char item[CS_SERIES_AT_BOUND_MAX];
+        snprintf(item, sizeof item, "%.*s", (int)n, t);
+        char *colon = strrchr(item, ':');
+        json_t *x = json_object();
+        if (colon) {
+            *colon = '\0';
+            json_object_set_new(x, "name", cli_jstring(item));
+            json_object_set_new(x, "bound", cli_jstring(colon + 1));
+        } else {   /* "...": the list was cut short */
+            json_object_set_new(x, "name", cli_jstring(item));
+            json_object_set_new(x, "bound", json_null());
+        }
+        json_array_append_new(a, x);
+        t = end ? end + 1 : NULL;
+    }
+    return a;
+}
+
 json_t *series_entry_json(const cs_series_entry *e)
 {
     json_t *o = json_object();
     json_object_set_new(o, "index", json_integer((json_int_t)e->index));
     json_object_set_new(o, "line", json_integer(e->line));
-    json_object_set_new(o, "file", json_string(e->file));
+    cli_json_set_path(o, "file", e->file);
     json_object_set_new(o, "status", json_string(cs_series_status_name(e->status)));
-    json_object_set_new(o, "message", json_string(e->message));
+    json_object_set_new(o, "message", cli_jstring(e->message));
     json_object_set_new(o, "kind", json_string((e->status == CS_SERIES_FAILED || e->status == CS_SERIES_PENDING) &&
                                                        e->kind == CS_KIND_AUTO
                                                    ? "unknown" : cs_kind_name(e->kind)));
@@ -137,6 +178,16 @@ json_t *series_entry_json(const cs_series_entry *e)
         json_object_set_new(o, "era", json_string(cs_split_era_name((cs_split_era)e->era)));
     for (int k = 0; k < CS_SPLIT_NERA; k++)
         json_object_set_new(o, cs_split_era_name((cs_split_era)k), line_json(&e->era_line[k]));
+    /* per era: the status of the fit(s) behind it (null: none ran) and the parameters at a bound */
+    json_t *jfs = json_object(), *jab = json_object();
+    for (int k = 0; k < CS_SPLIT_NERA; k++) {
+        const cs_series_line *l = &e->era_line[k];
+        const char *name = cs_split_era_name((cs_split_era)k);
+        json_object_set_new(jfs, name, l->nfits ? json_string(cs_fit_status_name(l->fit_status)) : json_null());
+        json_object_set_new(jab, name, at_bound_json(l->at_bound));
+    }
+    json_object_set_new(o, "fit_status", jfs);
+    json_object_set_new(o, "at_bound", jab);
     return o;
 }
 
@@ -157,6 +208,7 @@ static json_t *regression_json(const cs_series_regression *r)
     json_object_set_new(o, "dof", json_integer((json_int_t)r->fit.dof));
     json_object_set_new(o, "chi2_dof", cli_jnum(r->fit.redchi2));
     json_object_set_new(o, "n", json_integer((json_int_t)r->fit.n));
+    json_object_set_new(o, "left_out_error_undefined", json_integer((json_int_t)r->left_out));
     json_object_set_new(o, "errors_inflated", json_boolean(r->fit.inflated));
     return o;
 }
@@ -203,6 +255,16 @@ static json_t *theory_json(const cs_theory_estimates *est, const cs_series_compa
     return o;
 }
 
+/* printf-style number for the summary, or "undefined" when it could not be computed (never
+ * "nan" or "inf"). */
+static const char *num_text(double v, const char *fmt, char *buf, size_t n)
+{
+    if (!isfinite(v))
+        return "undefined";
+    snprintf(buf, n, fmt, v);
+    return buf;
+}
+
 static void print_summary(const cs_series *s, const series_opts *so, const order_item *ord,
                           const cs_series_regression *reg, const cs_theory_estimates *est,
                           const cs_series_compare *cmp, size_t ncmp)
@@ -220,19 +282,37 @@ static void print_summary(const cs_series *s, const series_opts *so, const order
         const cs_series_entry *e = &s->e[ord[j].i];
         cs_quantity_format(e->density_used_m3, CS_DIM_DENSITY, 4, b1, sizeof b1);
         if (e->status == CS_SERIES_FAILED || e->status == CS_SERIES_PENDING) {
-            printf("  %-18s %-5s %-74s %s  [%s]\n", isfinite(e->density_used_m3) ? b1 : "-", "-", "-", e->file,
-                   e->status == CS_SERIES_FAILED ? "failed, skipped" : "not analysed (interrupted)");
+            char fits[2 * CS_SERIES_AT_BOUND_MAX + 128] = "";
+            for (int k = 0; k < CS_SPLIT_NERA; k++) {
+                const cs_series_line *l = &e->era_line[k];
+                size_t n = strlen(fits);
+                if (l->nfits)
+                    snprintf(fits + n, sizeof fits - n, "; %s fit: %s%s%s", cs_split_era_name((cs_split_era)k),
+                             cs_fit_status_name(l->fit_status), l->at_bound[0] ? ", at a bound: " : "",
+                             l->at_bound);
+            }
+            printf("  %-18s %-5s %-74s %s  [%s%s]\n", isfinite(e->density_used_m3) ? b1 : "-", "-", "-", e->file,
+                   e->status == CS_SERIES_FAILED ? "failed, skipped" : "not analysed (interrupted)", fits);
             continue;
         }
         for (int k = 0; k < CS_SPLIT_NERA; k++) {
             const cs_series_line *l = &e->era_line[k];
-            if (!l->ok)
+            char note[CS_SERIES_AT_BOUND_MAX + 96] = "";
+            if (l->nfits && (l->fit_status != CS_FIT_CONVERGED || l->at_bound[0]))
+                snprintf(note, sizeof note, "  [fit: %s%s%s]", cs_fit_status_name(l->fit_status),
+                         l->at_bound[0] ? "; at a bound: " : "", l->at_bound);
+            if (!l->ok) {
+                if (l->nfits)
+                    printf("  %-18s %-5s %-74s %s%s\n", b1, cs_split_era_name((cs_split_era)k),
+                           "not measured", e->file, note);
                 continue;
-            printf("  %-18s %-5s %-24s %-24s %-24s %s\n", b1, cs_split_era_name((cs_split_era)k),
+            }
+            printf("  %-18s %-5s %-24s %-24s %-24s %s%s\n", b1, cs_split_era_name((cs_split_era)k),
                    cs_format_value_err(l->center_hz, l->center_hz_err, CS_DIM_FREQUENCY, b2, sizeof b2),
                    isfinite(l->shift_hz) ? cs_format_value_err(l->shift_hz, l->shift_hz_err, CS_DIM_FREQUENCY,
                                                                b3, sizeof b3) : "-",
-                   cs_format_value_err(l->fwhm_hz, l->fwhm_hz_err, CS_DIM_FREQUENCY, b4, sizeof b4), e->file);
+                   cs_format_value_err(l->fwhm_hz, l->fwhm_hz_err, CS_DIM_FREQUENCY, b4, sizeof b4), e->file,
+                   note);
         }
     }
     printf("\nRegressions against density (y = intercept + slope x density, density in cm^-3%s):\n",
@@ -240,25 +320,30 @@ static void print_summary(const cs_series *s, const series_opts *so, const order
     for (size_t i = 0; i < CS_SPLIT_NERA * CS_SERIES_NQ; i++) {
         const cs_series_regression *r = &reg[i];
         const char *y = r->quantity == CS_SERIES_Q_FWHM ? "fwhm" : r->relative ? "shift" : "centre";
+        char left[96] = "";
+        if (r->left_out)
+            snprintf(left, sizeof left, " (%zu left out: error undefined)", r->left_out);
         if (r->status != CS_OK) {
-            printf("  %-5s %-6s  too few points (%zu)\n", cs_split_era_name(r->era), y, r->fit.n);
+            printf("  %-5s %-6s  too few points (%zu)%s\n", cs_split_era_name(r->era), y, r->fit.n, left);
             continue;
         }
-        printf("  %-5s %-6s  slope %s Hz cm^3, intercept %s, chi2/dof %.3g, n %zu%s\n",
+        printf("  %-5s %-6s  slope %s Hz cm^3, intercept %s, chi2/dof %s, n %zu%s%s\n",
                cs_split_era_name(r->era), y,
                cs_format_value_err(r->fit.slope, r->fit.slope_err, CS_DIM_DIMENSIONLESS, b1, sizeof b1),
                cs_format_value_err(r->fit.intercept, r->fit.intercept_err, CS_DIM_FREQUENCY, b2, sizeof b2),
-               r->fit.redchi2, r->fit.n,
-               r->fit.inflated ? "  (errors inflated by sqrt(chi2/dof))" : "");
+               num_text(r->fit.redchi2, "%.3g", b3, sizeof b3), r->fit.n, left,
+               r->fit.inflated ? "  (errors inflated by sqrt(chi2/dof))"
+               : r->fit.dof == 0 ? "  (no degrees of freedom: chi2/dof undefined)" : "");
     }
     if (!est)
         return;
     printf("\nTheory: %s (%s); %s\n", est->line.label, est->line.source, CS_THEORY_CONVENTIONS);
     for (size_t i = 0; i < ncmp; i++) {
         const cs_estimate *e = &est->e[cmp[i].estimate];
-        printf("  %-5s %-6s vs %-30s %.4g Hz cm^3: ratio %.3g, (measured - theory)/error %+.2f  [%s]\n",
+        printf("  %-5s %-6s vs %-30s %s Hz cm^3: ratio %s, (measured - theory)/error %s  [%s]\n",
                cs_split_era_name(cmp[i].era), cs_series_quantity_name(cmp[i].quantity), e->label,
-               cmp[i].theory_hz_cm3, cmp[i].ratio, cmp[i].nsigma, e->cite);
+               num_text(cmp[i].theory_hz_cm3, "%.4g", b1, sizeof b1), num_text(cmp[i].ratio, "%.3g", b2, sizeof b2),
+               num_text(cmp[i].nsigma, "%+.2f", b3, sizeof b3), e->cite);
     }
     for (size_t q = CS_TH_LL_COEF; q <= CS_TH_SELF_COEF; q++)
         if ((q == CS_TH_LL_COEF || q == CS_TH_SLAB_COEF || q == CS_TH_SELF_COEF) &&
@@ -270,7 +355,7 @@ static char *make_table(const cs_series *s, const order_item *ord)
 {
     sbuf t = {0};
     sb_printf(&t, "density_cm3,era,file,line,status,center_hz,center_hz_err,shift_hz,shift_hz_err,"
-                  "fwhm_hz,fwhm_hz_err,area,area_err\n");
+                  "fwhm_hz,fwhm_hz_err,area,area_err,fit_status,at_bound\n");
     for (size_t j = 0; j < s->n; j++) {
         const cs_series_entry *e = &s->e[ord[j].i];
         for (int k = 0; k < CS_SPLIT_NERA; k++) {
@@ -279,13 +364,17 @@ static char *make_table(const cs_series *s, const order_item *ord)
                 continue;
             if (isfinite(e->density_used_m3))
                 sb_printf(&t, "%.10g", e->density_used_m3 * 1e-6);
-            sb_printf(&t, ",%s,%s,%ld,%s", cs_split_era_name((cs_split_era)k), e->file, e->line,
+            sb_printf(&t, ",%s", cs_split_era_name((cs_split_era)k));
+            sb_text(&t, e->file);
+            sb_printf(&t, ",%ld,%s", e->line,
                       l->ok ? "ok" : e->status == CS_SERIES_FAILED ? "failed"
                                : e->status == CS_SERIES_PENDING ? "pending" : "not measured");
             sb_num(&t, l->center_hz); sb_num(&t, l->center_hz_err);
             sb_num(&t, l->shift_hz); sb_num(&t, l->shift_hz_err);
             sb_num(&t, l->fwhm_hz); sb_num(&t, l->fwhm_hz_err);
             sb_num(&t, l->area); sb_num(&t, l->area_err);
+            sb_text(&t, series_fit_status_word(l));
+            sb_text(&t, l->at_bound);
             sb_printf(&t, "\n");
         }
     }
@@ -309,8 +398,9 @@ static char *make_theory_table(const cs_series_regression *reg, const cs_theory_
                     : reg[cmp[i].era * CS_SERIES_NQ + cmp[i].quantity].relative ? "shift_hz" : "center_hz");
         sb_text(&t, cmp[i].name);
         sb_text(&t, e->label);
-        sb_printf(&t, ",%.17g", cmp[i].theory_hz_cm3);
-        sb_printf(&t, ",%.17g,%.17g", cmp[i].measured_hz_cm3, cmp[i].measured_hz_cm3_err);
+        sb_num17(&t, cmp[i].theory_hz_cm3);
+        sb_num17(&t, cmp[i].measured_hz_cm3);
+        sb_num17(&t, cmp[i].measured_hz_cm3_err);
         sb_num(&t, cmp[i].ratio);
         sb_num(&t, cmp[i].nsigma);
         sb_text(&t, e->cite);
@@ -327,7 +417,7 @@ static json_t *run_json(const cs_series *s, const series_opts *so)
 {
     json_t *o = json_object();
     json_object_set_new(o, "fingerprint", json_string(so->fingerprint));
-    json_object_set_new(o, "options", json_string(so->options ? so->options : ""));
+    json_object_set_new(o, "options", cli_jstring(so->options ? so->options : ""));
     json_object_set_new(o, "entries_total", json_integer((json_int_t)s->total));
     size_t npend = cs_series_count(s, CS_SERIES_PENDING);
     json_object_set_new(o, "complete", json_boolean(npend == 0));   /* false: interrupted */
@@ -437,7 +527,7 @@ static int plot_era(const char *file, const cs_series *s, cs_split_era era, cs_s
     free(x);
     if (rc != CS_OK)
         return cli_plot_failed(file, &err);
-    json_array_append_new(figures, json_string(file));
+    json_array_append_new(figures, cli_jstring(file));
     return 0;
 }
 
@@ -534,7 +624,7 @@ int series_output(const cs_series *s, const series_opts *so)
     if (so->json) {
         json_t *root = json_object();
         json_object_set_new(root, "command", json_string(so->command ? so->command : "series"));
-        json_object_set_new(root, "manifest", json_string(s->manifest));
+        cli_json_set_path(root, "manifest", s->manifest);
         json_object_set_new(root, "conventions", json_string(CS_THEORY_CONVENTIONS));
         json_object_set_new(root, "model", json_string(so->p.model));
         json_object_set_new(root, "spectrum_eras", json_string("broadest component = burst, narrowest = tail"));

@@ -467,7 +467,7 @@ static json_t *era_json(const cs_split_fit *f)
     json_t *o = line_json(&f->line, 1);
     json_object_set_new(o, "status", json_string(cs_split_status_name(f->status)));
     if (f->message[0])
-        json_object_set_new(o, "message", json_string(f->message));
+        json_object_set_new(o, "message", cli_jstring(f->message));
     json_object_set_new(o, "method", json_string(f->gate_aware ? "gate-aware" : "plain profiles on the gated PSD"));
     json_object_set_new(o, "model", json_string(f->model));
     json_object_set_new(o, "significance", cli_jnum(f->significance));
@@ -489,13 +489,13 @@ static json_t *agree_json(const cs_split_agree *a)
 static json_t *shot_json(const cs_split_shot *s, int averaged, size_t nshots)
 {
     json_t *o = json_object();
-    json_object_set_new(o, "file", json_string(s->source));
+    cli_json_set_path(o, "file", s->source);
     json_object_set_new(o, "shot", json_integer((json_int_t)s->shot));
     if (averaged)
         json_object_set_new(o, "power_average_of_shots", json_integer((json_int_t)nshots));
     json_object_set_new(o, "status", json_string(cs_split_status_name(s->status)));
     if (s->message[0])
-        json_object_set_new(o, "message", json_string(s->message));
+        json_object_set_new(o, "message", cli_jstring(s->message));
     json_object_set_new(o, "lo_hz", json_real(s->lo_hz));
     json_object_set_new(o, "lo_from", json_string(s->lo_from_meta ? "metadata" : "option or 0"));
     json_object_set_new(o, "reference_hz", cli_jnum(s->ref_hz));
@@ -517,7 +517,7 @@ static json_t *shot_json(const cs_split_shot *s, int averaged, size_t nshots)
     json_t *w = json_object();
     json_object_set_new(w, "status", json_string(cs_split_status_name(s->whole.status)));
     if (s->whole.message[0])
-        json_object_set_new(w, "message", json_string(s->whole.message));
+        json_object_set_new(w, "message", cli_jstring(s->whole.message));
     json_object_set_new(w, "gate", gate_json(&s->whole, "whole"));
     json_object_set_new(w, "burst", line_json(&s->whole_line[CS_SPLIT_BURST], 1));
     json_object_set_new(w, "tail", line_json(&s->whole_line[CS_SPLIT_TAIL], 1));
@@ -888,7 +888,7 @@ static int plot_split(const char *file, cs_gate_workspace *ws, const cs_record *
     if (cs_plot_envelope(file, &d, &o, &err) != CS_OK)
         rc = cli_plot_failed(file, &err);
     else
-        json_array_append_new(figures, json_string(file));
+        json_array_append_new(figures, cli_jstring(file));
     free(t);
     cs_envelope_free(env);
     return rc;
@@ -923,11 +923,11 @@ int cmd_split(int argc, char **argv)
         cs_error_clear(&err);
         cs_loaded_init(&files[a]);
         json_t *jf = json_object();
-        json_object_set_new(jf, "file", json_string(path));
+        cli_json_set_path(jf, "file", path);
         json_array_append_new(jfiles, jf);
         if (cs_io_load(path, &lo, &files[a], &err) != CS_OK) {
             worst = worse(worst, cli_report(&err));
-            json_object_set_new(jf, "status", json_string(err.msg));
+            json_object_set_new(jf, "status", cli_jstring(err.msg));
             continue;
         }
         if (files[a].kind != CS_KIND_RECORD) {

@@ -91,7 +91,7 @@ expect_code 3 "$CS_BIN" merge B.json --quiet;  expect_in "$TMP/err" "interrupted
 # --resume: the same table as the uninterrupted run, byte for byte, and the same JSON results
 expect_code 1 "$CS_BIN" series "$M" --table B.csv --json B.json --quiet --resume
 expect_in "$TMP/err" "3 of 10 entries already finished, 7 to analyse"
-cmp -s A.csv B.csv && ok || bad "resumed table differs from the uninterrupted one"
+cmp -s A.csv B.csv && ok || { diff A.csv B.csv >&2; bad "resumed table differs from the uninterrupted one"; }
 python3 - A.json B.json <<'PY' && ok || bad "resumed JSON differs from the uninterrupted one"
 import json, sys
 a, b = (json.load(open(p)) for p in sys.argv[1:])
@@ -105,7 +105,7 @@ expect_in "$TMP/err" "stopped by SIGTERM"
 n=$(count_entries C.csv.journal)
 [ "$n" -ge 2 ] && [ "$n" -le 3 ] && ok || bad "journal after SIGTERM with 2 threads: $n entries"
 expect_code 1 "$CS_BIN" series "$M" --threads 1 --table C.csv --quiet --resume
-cmp -s A.csv C.csv && ok || bad "table resumed after SIGTERM (2 threads) differs"
+cmp -s A.csv C.csv && ok || { diff A.csv C.csv >&2; bad "table resumed after SIGTERM (2 threads) differs"; }
 
 # D: a journal line cut short (kill -9 while writing): ignored, that entry is analysed again
 CS_SERIES_TEST_RAISE=TERM:5 expect_code 143 "$CS_BIN" series "$M" --table D.csv --journal D.jnl --quiet
@@ -121,13 +121,13 @@ expect_in "$TMP/err" "refusing to resume"
 expect_code 1 "$CS_BIN" series "$M" --table D.csv --journal D.jnl --quiet --resume --threads 2
 expect_in "$TMP/err" "cut short"
 expect_in "$TMP/err" "4 of 10 entries already finished, 6 to analyse"
-cmp -s A.csv D.csv && ok || bad "table resumed after a cut journal line differs"
+cmp -s A.csv D.csv && ok || { diff A.csv D.csv >&2; bad "table resumed after a cut journal line differs"; }
 [ "$(count_entries D.jnl)" = $NTOT ] && ok || bad "journal after resuming from a cut line"
 
 # --resume without a journal starts from the beginning
 expect_code 1 "$CS_BIN" series "$M" --table E.csv --quiet --resume
 expect_in "$TMP/err" "starting from the beginning"
-cmp -s A.csv E.csv && ok || bad "--resume without a journal differs"
+cmp -s A.csv E.csv && ok || { diff A.csv E.csv >&2; bad "--resume without a journal differs"; }
 
 # a file that is not a journal is never overwritten or read as one
 echo "precious,data" > keep.txt
