@@ -1,8 +1,9 @@
 /* Benchmark: fits per second of a Voigt + Lorentzian + linear baseline on 2048 points, on 1 and 2
  * threads, with the median time and iteration count; with and without automatic starting values.
  *
- * usage: bench_fit [--fits N] [--smoke]
- * Prints one JSON object per line. The spectra are synthetic (fixed seed): a broad Voigt and a
+ * usage: bench_fit [--fits N] [--smoke] [--start generic|guess] [--threads 1|2] [--verbose]
+ * Prints one JSON object per line (--start and --threads run only that case, e.g. under
+ * callgrind; --verbose prints every fit that did not converge to stderr). The spectra are synthetic (fixed seed): a broad Voigt and a
  * narrow Lorentzian 60 MHz apart on a sloping baseline with Gaussian noise of known sigma. */
 #include <collshift/fit.h>
 #include <collshift/model.h>
@@ -38,6 +39,7 @@ typedef struct job {
     double *times;          /* nfits */
     double *iters;
     int failed;
+    int verbose;
 } job;
 
 static void make_spectrum(gsl_rng *r, double *x, double *y, double *s)
@@ -76,8 +78,13 @@ static void *run(void *arg)
         int rc = cs_fit_run(ws, m, xs, y, s, NULL, NPTS, &par, &res, &err);
         j->times[k] = now() - t0;
         j->iters[k] = res ? (double)res->niter : 0;
-        if (rc != CS_OK || !res || res->status != CS_FIT_CONVERGED)
+        if (rc != CS_OK || !res || res->status != CS_FIT_CONVERGED) {
             j->failed++;
+            if (j->verbose)
+                fprintf(stderr, "bench_fit: seed %lu fit %zu: %s (%s after %zu iterations)\n", j->seed, k,
+                        res ? cs_fit_status_name(res->status) : "no result", res ? cs_fit_stop_name(res->stop) : "-",
+                        res ? res->niter : (size_t)0);
+        }
         cs_fit_result_free(res);
         cs_model_free(m);
     }
@@ -113,11 +120,22 @@ static void report(const char *label, int threads, job *jobs, double wall)
 int main(int argc, char **argv)
 {
     size_t nfits = 200;
+    int guess_lo = 0, guess_hi = 1, th_lo = 1, th_hi = 2, verbose = 0;
     for (int i = 1; i < argc; i++) {
         if (strcmp(argv[i], "--smoke") == 0)
             nfits = 3;
         else if (strcmp(argv[i], "--fits") == 0 && i + 1 < argc)
             nfits = (size_t)strtoull(argv[++i], NULL, 10);
+        else if (strcmp(argv[i], "--start") == 0 && i + 1 < argc)
+            guess_lo = guess_hi = strcmp(argv[++i], "guess") == 0;
+        else if (strcmp(argv[i], "--threads") == 0 && i + 1 < argc)
+            th_lo = th_hi = atoi(argv[++i]) == 2 ? 2 : 1;
+        else if (strcmp(argv[i], "--verbose") == 0)
+            verbose = 1;
+        else {
+            fprintf(stderr, "usage: bench_fit [--fits N] [--smoke] [--start generic|guess] [--threads 1|2] [--verbose]\n");
+            return 2;
+        }
     }
     /* a generic start: the automatic guess on one spectrum, reused for all */
     double x[NPTS], y[NPTS], s[NPTS], start[16];
@@ -135,13 +153,13 @@ int main(int argc, char **argv)
     cs_model_free(m);
 
     int rc = 0;
-    for (int guess = 0; guess <= 1; guess++) {
-        for (int threads = 1; threads <= 2; threads++) {
+    for (int guess = guess_lo; guess <= guess_hi; guess++) {
+        for (int threads = th_lo; threads <= th_hi; threads++) {
             job jobs[2];
             pthread_t th[2];
             for (int t = 0; t < threads; t++) {
                 jobs[t] = (job){nfits, guess, start, 1000u + (unsigned long)t, malloc(nfits * sizeof(double)),
-                                malloc(nfits * sizeof(double)), 0};
+                                malloc(nfits * sizeof(double)), 0, verbose};
             }
             double t0 = now();
             for (int t = 0; t < threads; t++)

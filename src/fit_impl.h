@@ -77,12 +77,15 @@ struct cs_fit_workspace {
     double *thcache;        /* pmax: internal variables of the last evaluation */
     double *dpdt;           /* pmax: transform derivatives */
     int cache_ok;           /* thcache/mval/Jfull valid and finite */
+    int p_evaluated;        /* mval/res/dfac/Jfull are those at p and the data y (set by a solve
+                               that ended on its last evaluated point; see cs_fit_impl_eval) */
     int last_nan;           /* the last evaluation produced NaN/Inf or an invalid model */
     size_t nfev, njev;
 
     /* covariance scratch (pmax x pmax) and per-parameter scratch */
     double *cwork, *gram, *cfree;      /* pmax x pmax */
-    double *colnorm, *nrm, *und;       /* pmax: covariance */
+    double *colnorm, *nrm, *und;       /* pmax: covariance (during a solve: the Gauss-Newton
+                                          gradient and step, and the step before last) */
     double *pwork;                     /* pmax: solver */
     double *pstart, *psol;             /* pmax: driver (start, solution) */
     double *ptry, *pbest;              /* pmax: multistart */

@@ -610,15 +610,22 @@ int cs_split_impl_whole(const split_ctx *cx, const cs_record *rec, cs_record *co
     cs_gated_spectrum_free(gs);
     if (rc != CS_OK || f->status != CS_SPLIT_OK)
         return rc;
-    /* broadest component: burst era; narrowest: tail era */
+    /* burst era: the sech2 component when the model has one (else the broadest); tail era: the
+       lorentz component when it has one (else the narrowest) */
     const cs_model *m = f->pmodel;
     size_t ib = 0, it = 0;
-    for (size_t k = 1; k < m->ncomp; k++) {
+    int hb = 0, ht = 0;
+    for (size_t k = 0; k < m->ncomp; k++) {
+        hb |= strcmp(m->comp[k].type->name, "sech2") == 0;
+        ht |= strcmp(m->comp[k].type->name, "lorentz") == 0;
+    }
+    int fb = 1, ft = 1;
+    for (size_t k = 0; k < m->ncomp; k++) {
         double w = f->pfit->derived[k].value[CS_PROFILE_FWHM];
-        if (w > f->pfit->derived[ib].value[CS_PROFILE_FWHM])
-            ib = k;
-        if (w < f->pfit->derived[it].value[CS_PROFILE_FWHM])
-            it = k;
+        if (!hb || strcmp(m->comp[k].type->name, "sech2") == 0)
+            if (fb || w > f->pfit->derived[ib].value[CS_PROFILE_FWHM]) { ib = k; fb = 0; }
+        if (!ht || strcmp(m->comp[k].type->name, "lorentz") == 0)
+            if (ft || w < f->pfit->derived[it].value[CS_PROFILE_FWHM]) { it = k; ft = 0; }
     }
     f->significance_min = cs_split_impl_min_significance(rec->n, p->detect_fap);
     size_t idx[CS_SPLIT_NERA] = {ib, it};
