@@ -212,7 +212,7 @@ START_TEST(chunk_boundaries)
 {
     const size_t per = 300007, nshots = 3; /* ci16: 4 B/sample -> 1.2 MB per shot */
     const size_t n = per * nshots;
-    unsigned char *b = malloc(n * 4 + 5);
+    unsigned char *b = calloc(n * 4 + 5, 1);   /* the 5-byte header is written as zeros */
     ck_assert_ptr_nonnull(b);
     for (size_t i = 0; i < 2 * n; i++)
         put_bits(b + 5 + 2 * i, 2, (uint64_t)(int64_t)((int)(i % 65536) - 32768), 1);
