@@ -365,6 +365,8 @@ static void fit_stats(const cs_fit_workspace *w, cs_fit_result *r, int ok)
     }
     if (!ok)
         chi2 = rss = NAN;
+    if (w->weighting == CS_WEIGHT_NOISE)
+        chi2 = rss;   /* the residuals were scaled by 1/noise_scale only for the solver */
     r->chi2 = chi2;
     r->dof = n - k;
     r->redchi2 = r->dof > 0 ? chi2 / (double)r->dof : NAN;
@@ -401,6 +403,7 @@ static int load_data(cs_fit_workspace *w, const double *x, const double *y, cons
     w->ycur = w->y;
     if (j == 0)
         return cs_error_set(err, CS_EDATA, NULL, -1, -1, "no data points to fit");
+    w->noise_scale = w->weighting == CS_WEIGHT_NOISE ? cs_fit_impl_noise_scale(w->y, j, w->ysim) : 1.0;
     cs_fit_impl_weights(w);
     return CS_OK;
 }
@@ -577,10 +580,22 @@ int cs_fit_run(cs_fit_workspace *ws, cs_model *m, const double *x, const double 
     r->njev = o.njev;
     r->x_ref = m->x_ref;
     fit_stats(ws, r, ok);
+    if (ok && !(isfinite(r->chi2) && isfinite(r->rms))) {
+        /* the model is finite but its residuals' sum of squares is beyond the double range
+           (data spanning hundreds of decades): nothing after this can be trusted */
+        ok = 0;
+        r->chi2 = r->redchi2 = r->aic = r->bic = r->rms = NAN;
+        r->status = CS_FIT_MODEL_NAN;
+        r->stop = CS_FIT_STOP_MODEL_NAN;
+    }
     cs_fit_impl_flag_bounds(ws, r);
 
     int singular = 0;
-    double factor = r->errors_scaled ? r->redchi2 : 1.0;
+    /* NOISE: the weighted Jacobian is J/noise_scale, so (J_w^T J_w)^-1 = noise_scale^2 (J^T J)^-1;
+       chi2/dof (plain sum of squares) / noise_scale^2 makes the covariance chi2/dof (J^T J)^-1 */
+    double factor = !r->errors_scaled              ? 1.0
+                    : ws->weighting == CS_WEIGHT_NOISE ? r->redchi2 / (ws->noise_scale * ws->noise_scale)
+                                                       : r->redchi2;
     if ((rc = cs_fit_impl_covariance(ws, r, r->status == CS_FIT_CONVERGED, factor, &singular)) != CS_OK)
         goto nomem;
     if (singular)

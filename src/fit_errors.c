@@ -130,7 +130,7 @@ int cs_fit_impl_resample(cs_fit_workspace *w, const cs_fit_parameters *par, cons
                 double inv = wt == CS_WEIGHT_SIGMA     ? w->sig[i]
                              : wt == CS_WEIGHT_POISSON ? sqrt(w->y[i] > 1.0 ? w->y[i] : 1.0)
                              : wt == CS_WEIGHT_CASH    ? sqrt(mi)
-                                                       : 1.0;
+                                                       : w->noise_scale;   /* efit = (y - m)/noise_scale */
                 v = mi + w->efit[gsl_rng_uniform_int(w->rng, n)] * inv;
             } else if (counts) {
                 v = (double)gsl_ran_poisson(w->rng, mi > 0.0 ? mi : 0.0);

@@ -54,6 +54,9 @@ struct cs_fit_workspace {
     double *sw;             /* residual weights 1/sigma_i (unused with Cash) */
     double *mval;           /* model at the last evaluation */
     double *dfac;           /* d r_i / d m_i at the last evaluation */
+    double noise_scale;     /* NOISE weighting: the residuals are (m - y) / noise_scale, a robust
+                               scale of the data (cs_fit_impl_noise_scale), so that the solver's
+                               tolerances see a cost of order n whatever the data's units */
     double *res;            /* residuals r_i at the last evaluation */
     double *work;           /* model scratch (transmission mode) */
     double *mfit;           /* model at the fitted parameters (resampling) */
@@ -118,6 +121,8 @@ CS_FIT_INTERNAL void cs_fit_impl_check_polish(cs_fit_workspace *w, double *p, fi
 CS_FIT_INTERNAL int cs_fit_impl_eval(cs_fit_workspace *w, const double *p);
 /* Residual weights for the current data (recomputed per replica for Neyman weights). */
 CS_FIT_INTERNAL void cs_fit_impl_weights(cs_fit_workspace *w);
+/* Robust scale of y[0..n) for NOISE weighting (work: n scratch values). */
+CS_FIT_INTERNAL double cs_fit_impl_noise_scale(const double *y, size_t n, double *work);
 /* Clamp p into [lo, hi] of free parameter f, keeping a small margin inside a bound. */
 CS_FIT_INTERNAL double cs_fit_impl_clamp(const fit_free *f, double p);
 

@@ -109,6 +109,8 @@
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_linalg.h>
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
 
 #include <float.h>
 #include <math.h>
@@ -242,15 +244,49 @@ static double cash_resid(double m, double y, double *drdm)
     return r;
 }
 
+/* Robust scale of the data for NOISE weighting: the median absolute difference of neighbouring
+ * points / (sqrt(2) x 0.6745), which is the standard deviation of white Gaussian noise (median
+ * absolute deviation, common practice) and is hardly moved by lines that span several points;
+ * else the RMS about the mean, else the largest |y|, else 1. Only a constant factor of the
+ * residuals: the minimum, chi2 (reported as the plain sum of squares), the covariance and every
+ * error are the same for any positive value (fit.c); it only keeps GSL's tolerances, which are
+ * relative for a cost above 1 and absolute below, meaningful for data in any unit (a power
+ * spectral density of 1e-20 W/Hz stopped after one step before). */
+double cs_fit_impl_noise_scale(const double *y, size_t n, double *work)
+{
+    double s = 0.0;
+    if (n >= 3) {
+        for (size_t i = 0; i + 1 < n; i++)
+            work[i] = fabs(y[i + 1] - y[i]);
+        gsl_sort(work, 1, n - 1);
+        s = gsl_stats_median_from_sorted_data(work, 1, n - 1) / (M_SQRT2 * 0.6744897501960817);
+    }
+    if (!(s > 0.0 && isfinite(s))) {
+        double mean = 0.0, ss = 0.0, top = 0.0;
+        for (size_t i = 0; i < n; i++)
+            mean += y[i] / (double)n;
+        for (size_t i = 0; i < n; i++) {
+            ss += (y[i] - mean) * (y[i] - mean);
+            top = fmax(top, fabs(y[i]));
+        }
+        s = n > 1 ? sqrt(ss / (double)(n - 1)) : 0.0;
+        if (!(s > 0.0 && isfinite(s)))
+            s = top > 0.0 && isfinite(top) ? top : 1.0;
+    }
+    return s;
+}
+
 void cs_fit_impl_weights(cs_fit_workspace *w)
 {
     const size_t n = w->n;
     w->p_evaluated = 0;
+    /* NOISE: 1/noise_scale, set once per data set by the driver (replicas keep it) */
+    const double inv = w->weighting == CS_WEIGHT_NOISE ? 1.0 / w->noise_scale : 1.0;
     for (size_t i = 0; i < n; i++) {
         switch (w->weighting) {
         case CS_WEIGHT_SIGMA: w->sw[i] = 1.0 / w->sig[i]; break;
         case CS_WEIGHT_POISSON: w->sw[i] = 1.0 / sqrt(w->ycur[i] > 1.0 ? w->ycur[i] : 1.0); break;
-        default: w->sw[i] = 1.0; break;
+        default: w->sw[i] = inv; break;
         }
     }
 }

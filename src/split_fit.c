@@ -341,7 +341,12 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
     cs_fit_parameters par = cs_fit_default_parameters();
     par.weighting = CS_WEIGHT_NOISE;
     cs_fit_result *r1 = NULL;
+    /* the equal-weight pass only starts the weighted ones: when it does not converge (it can
+       crawl along a valley of a periodogram, whose scatter grows with the level, until the
+       iteration limit), the weighted passes go on from where it stopped */
     int rc = cs_fit_run(NULL, f->pmodel, fx, fy, NULL, NULL, n, &par, &r1, &e2);
+    if (r1 && rc == CS_ENOCONV && r1->status == CS_FIT_NOT_CONVERGED)
+        rc = CS_OK;
     if (!r1) {
         if (rc == CS_ENOMEM) {
             if (err)

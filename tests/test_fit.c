@@ -1075,6 +1075,62 @@ END_TEST
  * tiny fraction of its standard errors (common practice). Not for the few spectra whose Gaussian
  * width runs to its bound 0 (error larger than the value): the bound transform flattens the cost
  * there and the steps crawl along it (fit.c, resolve_at_bounds). */
+/* Unweighted (NOISE) least squares does not depend on the units of y: scaling y by c scales the
+ * areas, the baseline, their errors by c and chi2 by c^2, and leaves centres and widths and their
+ * errors unchanged (the minimiser of sum (m - y)^2 is equivariant under y -> c y; common
+ * practice). A power spectral density in W/Hz (~1e-20) used to stop after one step, because the
+ * solver's tolerances are absolute for a cost below 1. */
+START_TEST(test_noise_units)
+{
+    enum { N = 600 };
+    static double x[N], y0[N], yc[N];
+    const cs_profile_type *l = cs_profile_find("lorentz");
+    const double p1[3] = {-40e6, 300e6, 2e9}, p2[3] = {25e6, 30e6, 3e8};
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(g, 77);
+    for (int i = 0; i < N; i++) {
+        x[i] = -1.2e9 + 2.4e9 * i / (N - 1.0);
+        y0[i] = 5.0;
+    }
+    cs_profile_eval(l, p1, x, N, y0);
+    cs_profile_eval(l, p2, x, N, y0);
+    for (int i = 0; i < N; i++)
+        y0[i] += gsl_ran_gaussian(g, 0.5);
+    gsl_rng_free(g);
+    const double scales[] = {1e-20, 1e-9, 1e12};
+    cs_fit_result *ref = NULL;
+    cs_error err;
+    cs_model *m0 = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_fit_parameters par = params(CS_WEIGHT_NOISE, 1);
+    ck_assert_int_eq(cs_fit_run(NULL, m0, x, y0, NULL, NULL, N, &par, &ref, &err), CS_OK);
+    ck_assert_int_eq(ref->status, CS_FIT_CONVERGED);
+    for (size_t k = 0; k < sizeof scales / sizeof *scales; k++) {
+        const double c = scales[k];
+        for (int i = 0; i < N; i++)
+            yc[i] = c * y0[i];
+        cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+        cs_fit_result *r = NULL;
+        int rc = cs_fit_run(NULL, m, x, yc, NULL, NULL, N, &par, &r, &err);
+        ck_assert_msg(rc == CS_OK && r->status == CS_FIT_CONVERGED, "y x %g: %s (%s after %zu iterations)", c,
+                      cs_fit_status_name(r->status), cs_fit_stop_name(r->stop), r->niter);
+        for (size_t j = 0; j < r->nparams; j++) {
+            /* areas (last of each lorentz) and the baseline scale with c; centres and widths not */
+            int scaled = j == 2 || j == 5 || j == 6;
+            double f = scaled ? c : 1.0;
+            ck_assert_msg(fabs(r->value[j] - f * ref->value[j]) <= 1e-6 * f * ref->err[j],
+                          "y x %g, param %zu: %.12g vs %.12g", c, j, r->value[j], f * ref->value[j]);
+            ck_assert_msg(tu_close(r->err[j], f * ref->err[j], 1e-5), "y x %g, error %zu: %.12g vs %.12g", c, j,
+                          r->err[j], f * ref->err[j]);
+        }
+        ck_assert(tu_close(r->chi2, c * c * ref->chi2, 1e-8));
+        cs_fit_result_free(r);
+        cs_model_free(m);
+    }
+    cs_fit_result_free(ref);
+    cs_model_free(m0);
+}
+END_TEST
+
 START_TEST(test_linear_convergence)
 {
     enum { N = 2048, FITS = 150 };
@@ -1151,6 +1207,7 @@ static Suite *fit_suite(void)
     tc = tcase_create("failures");
     tcase_add_test(tc, test_not_converged);
     tcase_add_test(tc, test_linear_convergence);
+    tcase_add_test(tc, test_noise_units);
     tcase_add_test(tc, test_singular);
     tcase_add_test(tc, test_model_nan);
     tcase_add_test(tc, test_bad_input);
