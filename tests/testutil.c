@@ -1,6 +1,8 @@
 /* Helpers shared by the Check suites: temporary files, reference-data paths, tolerances. */
 #include "testutil.h"
 
+#include <check.h>
+
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -25,10 +27,8 @@ static const char *dir(void)
     if (!tmpdir[0]) {
         const char *base = getenv("TMPDIR");
         snprintf(tmpdir, sizeof tmpdir, "%s/cs_test_XXXXXX", base && *base ? base : "/tmp");
-        if (!mkdtemp(tmpdir)) {
-            perror("mkdtemp");
-            abort();
-        }
+        if (!mkdtemp(tmpdir))
+            ck_abort_msg("cannot make a temporary folder under %s", base && *base ? base : "/tmp");
         atexit(cleanup);
     }
     return tmpdir;
@@ -45,10 +45,10 @@ const char *tu_write_file(const char *name, const void *data, size_t len)
 {
     const char *p = tu_tmp_path(name);
     FILE *f = fopen(p, "wb");
-    if (!f || (len && fwrite(data, 1, len, f) != len) || fclose(f) != 0) {
-        perror(p);
-        abort();
-    }
+    int ok = f && (!len || fwrite(data, 1, len, f) == len);
+    if (f)
+        ok &= fclose(f) == 0;
+    ck_assert_msg(ok, "cannot write the test file %s", p);
     return p;
 }
 

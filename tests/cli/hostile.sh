@@ -238,7 +238,7 @@ expect_code 3 "$CS_BIN" series "$U/manifeste é.csv" --threads 1 --table "$TMP/p
 expect_in "$TMP/err" "$TMP/plainfile/t.csv"
 # (b) a read-only folder (chmod 555): for root, chmod does not stop writes, so it is tested
 #     only when it actually refuses a write
-RO="$TMP/lecture seule"
+RO="$TMP/dossier protégé"
 mkdir -p "$RO"
 chmod 555 "$RO"
 if ( : >"$RO/probe" ) 2>/dev/null; then
