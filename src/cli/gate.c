@@ -463,37 +463,6 @@ static size_t plot_gates(const cs_gate *gates, size_t ng, cs_plot_gate *pg)
     return ng;
 }
 
-/* --plot-envelope: the smoothed envelope on a logarithmic axis with the gates. */
-static int plot_envelope_fig(const char *file, const cs_envelope *env, const cs_plot_gate *pg, size_t ng,
-                             json_t *figures)
-{
-    double *t = malloc((env->n ? env->n : 1) * sizeof *t);
-    if (!t) {
-        cli_errorf("'%s': out of memory", file);
-        return CLI_EXIT_DATA;
-    }
-    for (size_t i = 0; i < env->n; i++)
-        t[i] = env->t0_s + (double)i * env->dt_s;
-    cs_plot_envelope_data d;
-    memset(&d, 0, sizeof d);
-    d.n = env->n;
-    d.t_s = t;
-    d.intensity = env->smooth ? env->smooth : env->intensity;
-    d.log_y = 1;
-    d.ngates = ng;
-    d.gates = ng ? pg : NULL;
-    cs_plot_options o;
-    cs_plot_options_init(&o);
-    cs_error err;
-    cs_error_clear(&err);
-    int rc = 0;
-    if (cs_plot_envelope(file, &d, &o, &err) != CS_OK)
-        rc = cli_plot_failed(file, &err);
-    else
-        json_array_append_new(figures, cli_jstring(file));
-    free(t);
-    return rc;
-}
 
 static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opts *go, const cs_load_options *lo,
                          int several, int *worst, json_t *figures)
@@ -687,7 +656,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
     if (go->plot_env && env) {
         char name[1024];
         cli_plot_name_for(name, sizeof name, go->plot_env, path, several);
-        int w = plot_envelope_fig(name, env, pg, npg, figures);
+        int w = cli_plot_envelope(name, env, pg, npg, figures);
         if (w > *worst)
             *worst = w;
     }

@@ -854,14 +854,6 @@ static int plot_split(const char *file, cs_gate_workspace *ws, const cs_record *
     cs_envelope *env = NULL;
     if (cs_envelope_compute(ws, rec, NULL, &env, &err) != CS_OK)
         return cli_plot_failed(file, &err);
-    double *t = malloc((env->n ? env->n : 1) * sizeof *t);
-    if (!t) {
-        cs_envelope_free(env);
-        cli_errorf("'%s': out of memory", file);
-        return CLI_EXIT_DATA;
-    }
-    for (size_t i = 0; i < env->n; i++)
-        t[i] = env->t0_s + (double)i * env->dt_s;
     static const char *const names[CS_SPLIT_NERA] = {"early", "late"};
     cs_plot_gate pg[CS_SPLIT_NERA];
     size_t ng = 0;
@@ -874,22 +866,7 @@ static int plot_split(const char *file, cs_gate_workspace *ws, const cs_record *
         pg[ng].length_s = f->gate.length_s;
         ng++;
     }
-    cs_plot_envelope_data d;
-    memset(&d, 0, sizeof d);
-    d.n = env->n;
-    d.t_s = t;
-    d.intensity = env->smooth ? env->smooth : env->intensity;
-    d.log_y = 1;
-    d.ngates = ng;
-    d.gates = ng ? pg : NULL;
-    cs_plot_options o;
-    cs_plot_options_init(&o);
-    int rc = 0;
-    if (cs_plot_envelope(file, &d, &o, &err) != CS_OK)
-        rc = cli_plot_failed(file, &err);
-    else
-        json_array_append_new(figures, cli_jstring(file));
-    free(t);
+    int rc = cli_plot_envelope(file, env, pg, ng, figures);
     cs_envelope_free(env);
     return rc;
 }
