@@ -45,43 +45,6 @@
 
 /* ---------------------------------------------------------------- helpers */
 
-static cs_model *model_new(const char *text, cs_baseline_kind b, cs_model_mode mode)
-{
-    cs_error err;
-    cs_model *m = cs_model_alloc(text, b, mode, &err);
-    ck_assert_msg(m != NULL, "model '%s': %s", text, err.msg);
-    return m;
-}
-
-static long pidx(const cs_model *m, const char *name)
-{
-    long i = cs_model_param_index(m, name);
-    ck_assert_msg(i >= 0, "no parameter '%s'", name);
-    return i;
-}
-
-/* Starting value given by the user. */
-static void start(cs_model *m, const char *name, double v)
-{
-    long i = pidx(m, name);
-    m->par[i].value = v;
-    m->par[i].user_start = 1;
-}
-
-static void constrain(cs_model *m, int (*fn)(cs_model *, const char *, cs_error *), const char *text)
-{
-    cs_error err;
-    int rc = fn(m, text, &err);
-    ck_assert_msg(rc == CS_OK, "constraint '%s': %s", text, err.msg);
-}
-
-/* Lorentzian of unit area convention as in profile.h: area (h/pi) / (u^2 + h^2), h = fwhm/2. */
-static double lorentz(double x, double c, double fwhm, double area)
-{
-    double h = 0.5 * fwhm, u = x - c;
-    return area * (h / PI) / (u * u + h * h);
-}
-
 static cs_fit_parameters params(cs_fit_weighting w, int guess)
 {
     cs_fit_parameters p = cs_fit_default_parameters();
@@ -199,14 +162,14 @@ START_TEST(test_nist_gauss)
     ck_assert_uint_eq(d.p, 8);
     ck_assert_uint_eq(d.n, 250);
 
-    cs_model *m = model_new("gauss+gauss", CS_BASELINE_EXP, CS_MODEL_SUM);
+    cs_model *m = tu_model("gauss+gauss", CS_BASELINE_EXP, CS_MODEL_SUM);
     static const char *names[8] = {"1.center", "1.fwhm", "1.area", "2.center", "2.fwhm", "2.area", "base.amp",
                                    "base.rate"};
     double v[8];
     gauss_to_model(d.start[st], v);
     for (int j = 0; j < 8; j++) {
-        ck_assert_int_eq(pidx(m, names[j]), j);
-        start(m, names[j], v[j]);
+        ck_assert_int_eq(tu_param(m, names[j]), j);
+        tu_start(m, names[j], v[j]);
     }
     m->x_ref = 0.0;
     cs_fit_parameters par = params(CS_WEIGHT_NOISE, 0);
@@ -267,11 +230,11 @@ START_TEST(test_nist_eckerle4)
     ck_assert_uint_eq(d.p, 3);
     const double s2p = sqrt(2.0 * PI), cf = 2.0 * sqrt(2.0 * log(2.0));
     int st = _i;
-    cs_model *m = model_new("gauss", CS_BASELINE_NONE, CS_MODEL_SUM);
+    cs_model *m = tu_model("gauss", CS_BASELINE_NONE, CS_MODEL_SUM);
     const double *b0 = d.start[st];
-    start(m, "1.center", b0[2]);
-    start(m, "1.fwhm", cf * b0[1]);
-    start(m, "1.area", b0[0] * s2p);
+    tu_start(m, "1.center", b0[2]);
+    tu_start(m, "1.fwhm", cf * b0[1]);
+    tu_start(m, "1.area", b0[0] * s2p);
     cs_fit_parameters par = params(CS_WEIGHT_NOISE, 0);
     cs_fit_result *r = NULL;
     cs_error err;
@@ -334,10 +297,10 @@ START_TEST(test_nist_norris)
     ck_assert_uint_eq(n, 36);
     ck_assert(isfinite(B[0]) && isfinite(B[1]) && isfinite(S[1]) && isfinite(rsd) && isfinite(rss));
 
-    cs_model *m = model_new("", CS_BASELINE_LINEAR, CS_MODEL_SUM);
+    cs_model *m = tu_model("", CS_BASELINE_LINEAR, CS_MODEL_SUM);
     ck_assert_uint_eq(m->ncomp, 0);
-    start(m, "base.c0", 0.0);
-    start(m, "base.c1", 0.0);
+    tu_start(m, "base.c0", 0.0);
+    tu_start(m, "base.c1", 0.0);
     m->x_ref = 0.0;
     cs_fit_parameters par = params(CS_WEIGHT_NOISE, 0);
     cs_fit_result *r = NULL;
@@ -378,8 +341,8 @@ START_TEST(test_cash_constant)
     for (int i = 0; i < N; i++)
         if (y[i] > 0)
             dev += 2.0 * y[i] * log(y[i] / mean);
-    cs_model *m = model_new("none", CS_BASELINE_CONST, CS_MODEL_SUM);
-    start(m, "base.c0", 1.0);
+    cs_model *m = tu_model("none", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m, "base.c0", 1.0);
     cs_fit_parameters par = params(CS_WEIGHT_CASH, 0);
     cs_fit_result *r = NULL;
     cs_error err;
@@ -413,10 +376,10 @@ START_TEST(test_cash_line)
     const double c = 250e6, w = 30e6, a = 40.0 * PI * 15e6, b0 = 2.0; /* peak 40 counts on 2 */
     for (int i = 0; i < N; i++) {
         x[i] = 100e6 + 1e6 * i;
-        y[i] = (double)gsl_ran_poisson(g, lorentz(x[i], c, w, a) + b0);
+        y[i] = (double)gsl_ran_poisson(g, tu_lorentz(x[i], c, w, a) + b0);
     }
     gsl_rng_free(g);
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     cs_fit_parameters par = params(CS_WEIGHT_CASH, 1);
     cs_fit_result *r = NULL;
     cs_error err;
@@ -464,12 +427,12 @@ START_TEST(test_transmission)
         y[i] = y0[i] + gsl_ran_gaussian(g, s[i]);
     }
     gsl_rng_free(g);
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_TRANSMISSION);
-    ck_assert_int_eq(pidx(m, "1.od"), 2);
-    start(m, "1.center", c + 3e6);
-    start(m, "1.fwhm", 1.3 * w);
-    start(m, "1.od", 1.0);
-    start(m, "base.c0", 1.0);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_TRANSMISSION);
+    ck_assert_int_eq(tu_param(m, "1.od"), 2);
+    tu_start(m, "1.center", c + 3e6);
+    tu_start(m, "1.fwhm", 1.3 * w);
+    tu_start(m, "1.od", 1.0);
+    tu_start(m, "base.c0", 1.0);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 0);
     cs_fit_result *r = NULL;
     cs_error err;
@@ -482,7 +445,7 @@ START_TEST(test_transmission)
     cs_fit_result_free(r);
 
     cs_model_free(m);
-    m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_TRANSMISSION);
+    m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_TRANSMISSION);
     par.guess = 1;
     ck_assert_msg(cs_fit_run(NULL, m, x, y, s, NULL, N, &par, &r, &err) == CS_OK, "%s", err.msg);
     ck_assert_int_eq(r->status, CS_FIT_CONVERGED);
@@ -505,7 +468,7 @@ static void two_lines(double *x, double *y, double *s, size_t n, double noise, u
     gsl_rng_set(g, seed);
     for (size_t i = 0; i < n; i++) {
         x[i] = 1e6 * (double)i;
-        y[i] = lorentz(x[i], 200e6, 30e6, 3e7) + lorentz(x[i], 250e6, 15e6, 1e7) + 0.1;
+        y[i] = tu_lorentz(x[i], 200e6, 30e6, 3e7) + tu_lorentz(x[i], 250e6, 15e6, 1e7) + 0.1;
         if (noise > 0)
             y[i] += gsl_ran_gaussian(g, noise);
         s[i] = noise > 0 ? noise : 1.0;
@@ -518,15 +481,15 @@ START_TEST(test_fixed_tied)
     enum { N = 400 };
     double x[N], y[N], s[N];
     two_lines(x, y, s, N, 0.005, 11);
-    cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_LINEAR, CS_MODEL_SUM);
-    constrain(m, cs_model_tie, "2.center=1.center+50MHz");
-    constrain(m, cs_model_tie, "2.fwhm=0.5*1.fwhm");
-    constrain(m, cs_model_fix, "base.c1=0");
-    start(m, "1.center", 203e6);
-    start(m, "1.fwhm", 25e6);
-    start(m, "1.area", 2e7);
-    start(m, "2.area", 2e7);
-    start(m, "base.c0", 0.0);
+    cs_model *m = tu_model("lorentz+lorentz", CS_BASELINE_LINEAR, CS_MODEL_SUM);
+    tu_constrain(m, cs_model_tie, "2.center=1.center+50MHz");
+    tu_constrain(m, cs_model_tie, "2.fwhm=0.5*1.fwhm");
+    tu_constrain(m, cs_model_fix, "base.c1=0");
+    tu_start(m, "1.center", 203e6);
+    tu_start(m, "1.fwhm", 25e6);
+    tu_start(m, "1.area", 2e7);
+    tu_start(m, "2.area", 2e7);
+    tu_start(m, "base.c0", 0.0);
     m->x_ref = 0.0;
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 0);
     cs_fit_result *r = NULL;
@@ -534,8 +497,8 @@ START_TEST(test_fixed_tied)
     ck_assert_msg(cs_fit_run(NULL, m, x, y, s, NULL, N, &par, &r, &err) == CS_OK, "%s", err.msg);
     ck_assert_int_eq(r->status, CS_FIT_CONVERGED);
     ck_assert_uint_eq(r->nfree, 5); /* 1.center 1.fwhm 1.area 2.area base.c0 */
-    long c1 = pidx(m, "1.center"), w1 = pidx(m, "1.fwhm"), c2 = pidx(m, "2.center"), w2 = pidx(m, "2.fwhm");
-    long b1 = pidx(m, "base.c1");
+    long c1 = tu_param(m, "1.center"), w1 = tu_param(m, "1.fwhm"), c2 = tu_param(m, "2.center"), w2 = tu_param(m, "2.fwhm");
+    long b1 = tu_param(m, "base.c1");
     const double *v = r->value, *e = r->err;
     /* tied values follow their master exactly as written; errors and covariances propagate */
     ck_assert(tu_close(v[c2], v[c1] + 50e6, 1e-15));
@@ -561,7 +524,7 @@ START_TEST(test_fixed_tied)
     const size_t np = r->nparams;
     double p[8], yp[N], ym[N], Jn[N][5];
     for (int j = 0; j < 5; j++) {
-        long q = pidx(m, fn[j]);
+        long q = tu_param(m, fn[j]);
         double h = 1e-5 * fabs(v[q]);
         for (int sgn = 0; sgn < 2; sgn++) {
             memcpy(p, v, np * sizeof *p);
@@ -584,7 +547,7 @@ START_TEST(test_fixed_tied)
     ck_assert_int_eq(gsl_linalg_cholesky_decomp1(A), 0);
     ck_assert_int_eq(gsl_linalg_cholesky_invert(A), 0);
     for (int j = 0; j < 5; j++) {
-        long q = pidx(m, fn[j]);
+        long q = tu_param(m, fn[j]);
         double en = sqrt(gsl_matrix_get(A, (size_t)j, (size_t)j));
         ck_assert_msg(tu_close(e[q], en, 1e-5), "%s: error %.10g, finite differences %.10g", fn[j], e[q], en);
     }
@@ -608,15 +571,15 @@ START_TEST(test_bounds)
      * 2: bounds around the truth, the lower one 7 % of the range below it -> inside */
     static const char *bound[3] = {"1.fwhm=40MHz:100MHz", "1.fwhm=1MHz:20MHz", "1.fwhm=25MHz:100MHz"};
     static const double edge[3] = {40e6, 20e6, NAN};
-    cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-    start(m, "1.center", 200e6);
-    start(m, "1.fwhm", _i == 1 ? 15e6 : 50e6);
-    start(m, "1.area", 3e7);
-    start(m, "2.center", 250e6);
-    start(m, "2.fwhm", 15e6);
-    start(m, "2.area", 1e7);
-    start(m, "base.c0", 0.1);
-    constrain(m, cs_model_bound, bound[_i]);
+    cs_model *m = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m, "1.center", 200e6);
+    tu_start(m, "1.fwhm", _i == 1 ? 15e6 : 50e6);
+    tu_start(m, "1.area", 3e7);
+    tu_start(m, "2.center", 250e6);
+    tu_start(m, "2.fwhm", 15e6);
+    tu_start(m, "2.area", 1e7);
+    tu_start(m, "base.c0", 0.1);
+    tu_constrain(m, cs_model_bound, bound[_i]);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 0);
     cs_fit_result *r = NULL;
     cs_error err;
@@ -624,7 +587,7 @@ START_TEST(test_bounds)
     ck_assert_msg(rc == CS_OK, "%s: %s", bound[_i], err.msg);
     ck_assert_msg(r->status == CS_FIT_CONVERGED, "%s: %s (%s)", bound[_i], cs_fit_status_name(r->status),
                   cs_fit_stop_name(r->stop));
-    long w1 = pidx(m, "1.fwhm"), c1 = pidx(m, "1.center"), c2 = pidx(m, "2.center");
+    long w1 = tu_param(m, "1.fwhm"), c1 = tu_param(m, "1.center"), c2 = tu_param(m, "2.center");
     double v = r->value[w1];
     double lo = m->par[w1].lo, hi = m->par[w1].hi;
     ck_assert_msg(v >= lo && v <= hi, "%s: %.12g outside [%g, %g]", bound[_i], v, lo, hi);
@@ -658,11 +621,11 @@ START_TEST(test_not_converged)
     enum { N = 400 };
     double x[N], y[N], s[N];
     two_lines(x, y, s, N, 0.005, 13);
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-    start(m, "1.center", 150e6);
-    start(m, "1.fwhm", 80e6);
-    start(m, "1.area", 1e7);
-    start(m, "base.c0", 0.0);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m, "1.center", 150e6);
+    tu_start(m, "1.fwhm", 80e6);
+    tu_start(m, "1.area", 1e7);
+    tu_start(m, "base.c0", 0.0);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 0);
     par.max_iter = 2;
     cs_fit_result *r = NULL;
@@ -693,37 +656,37 @@ START_TEST(test_singular)
     double x[N], y[N], s[N];
     for (int i = 0; i < N; i++) {
         x[i] = 1e6 * i;
-        y[i] = lorentz(x[i], 150e6, 20e6, 1e7) + 0.05 * sin(0.37 * i);
+        y[i] = tu_lorentz(x[i], 150e6, 20e6, 1e7) + 0.05 * sin(0.37 * i);
         s[i] = 0.05;
     }
-    cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-    constrain(m, cs_model_tie, "2.center=1.center");
-    constrain(m, cs_model_tie, "2.fwhm=1.fwhm");
-    start(m, "1.center", 152e6);
-    start(m, "1.fwhm", 25e6);
-    start(m, "1.area", 4e6);
-    start(m, "2.area", 4e6);
-    start(m, "base.c0", 0.0);
+    cs_model *m = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_constrain(m, cs_model_tie, "2.center=1.center");
+    tu_constrain(m, cs_model_tie, "2.fwhm=1.fwhm");
+    tu_start(m, "1.center", 152e6);
+    tu_start(m, "1.fwhm", 25e6);
+    tu_start(m, "1.area", 4e6);
+    tu_start(m, "2.area", 4e6);
+    tu_start(m, "base.c0", 0.0);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 0);
     cs_fit_result *r = NULL;
     cs_error err;
     int rc = cs_fit_run(NULL, m, x, y, s, NULL, N, &par, &r, &err);
     ck_assert_msg(rc == CS_OK, "%s", err.msg);
     ck_assert_int_eq(r->status, CS_FIT_SINGULAR);
-    long a1 = pidx(m, "1.area"), a2 = pidx(m, "2.area"), c1 = pidx(m, "1.center"), w1 = pidx(m, "1.fwhm");
+    long a1 = tu_param(m, "1.area"), a2 = tu_param(m, "2.area"), c1 = tu_param(m, "1.center"), w1 = tu_param(m, "1.fwhm");
     ck_assert(isnan(r->err[a1]) && isnan(r->err[a2]));
     ck_assert(isnan(r->cov[a1 * r->nparams + a2]));
     /* estimable: the common centre and width, the baseline, and the total area */
     ck_assert(isfinite(r->err[c1]) && r->err[c1] > 0);
     ck_assert(isfinite(r->err[w1]) && r->err[w1] > 0);
-    ck_assert(isfinite(r->err[pidx(m, "base.c0")]));
+    ck_assert(isfinite(r->err[tu_param(m, "base.c0")]));
     /* the same function as one Lorentzian of area a1 + a2: same values, and the same errors for
      * the estimable parameters (any generalised inverse gives them) */
-    cs_model *m1 = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-    start(m1, "1.center", 152e6);
-    start(m1, "1.fwhm", 25e6);
-    start(m1, "1.area", 8e6);
-    start(m1, "base.c0", 0.0);
+    cs_model *m1 = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m1, "1.center", 152e6);
+    tu_start(m1, "1.fwhm", 25e6);
+    tu_start(m1, "1.area", 8e6);
+    tu_start(m1, "base.c0", 0.0);
     cs_fit_result *r1 = NULL;
     ck_assert(cs_fit_run(NULL, m1, x, y, s, NULL, N, &par, &r1, &err) == CS_OK);
     ck_assert_int_eq(r1->status, CS_FIT_CONVERGED);
@@ -733,29 +696,29 @@ START_TEST(test_singular)
     ck_assert(tu_close(r->value[w1], r1->value[1], 1e-7));
     ck_assert_msg(tu_close(r->err[c1], r1->err[0], 1e-5), "centre error %g vs %g", r->err[c1], r1->err[0]);
     ck_assert_msg(tu_close(r->err[w1], r1->err[1], 1e-5), "width error %g vs %g", r->err[w1], r1->err[1]);
-    ck_assert(tu_close(r->err[pidx(m, "base.c0")], r1->err[3], 1e-5));
+    ck_assert(tu_close(r->err[tu_param(m, "base.c0")], r1->err[3], 1e-5));
     cs_fit_result_free(r1);
     cs_model_free(m1);
     cs_fit_result_free(r);
     cs_model_free(m);
 
-    m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-    start(m, "1.center", 152e6);
-    start(m, "1.fwhm", 25e6);
-    start(m, "1.area", 8e6);
-    start(m, "2.center", 100e6);
-    start(m, "2.fwhm", 10e6);
-    constrain(m, cs_model_fix, "2.area=0");
-    start(m, "base.c0", 0.0);
+    m = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m, "1.center", 152e6);
+    tu_start(m, "1.fwhm", 25e6);
+    tu_start(m, "1.area", 8e6);
+    tu_start(m, "2.center", 100e6);
+    tu_start(m, "2.fwhm", 10e6);
+    tu_constrain(m, cs_model_fix, "2.area=0");
+    tu_start(m, "base.c0", 0.0);
     rc = cs_fit_run(NULL, m, x, y, s, NULL, N, &par, &r, &err);
     ck_assert_msg(rc == CS_OK, "%s", err.msg);
     ck_assert_int_eq(r->status, CS_FIT_SINGULAR);
-    long c2 = pidx(m, "2.center"), w2 = pidx(m, "2.fwhm");
+    long c2 = tu_param(m, "2.center"), w2 = tu_param(m, "2.fwhm");
     ck_assert(isnan(r->err[c2]) && isnan(r->err[w2]));
-    ck_assert_double_eq(r->err[pidx(m, "2.area")], 0.0);
+    ck_assert_double_eq(r->err[tu_param(m, "2.area")], 0.0);
     static const char *determined[4] = {"1.center", "1.fwhm", "1.area", "base.c0"};
     for (int k = 0; k < 4; k++) {
-        double e = r->err[pidx(m, determined[k])];
+        double e = r->err[tu_param(m, determined[k])];
         ck_assert_msg(isfinite(e) && e > 0, "%s: error %g", determined[k], e);
     }
     cs_fit_result_free(r);
@@ -771,8 +734,8 @@ START_TEST(test_model_nan)
         x[i] = i;
         y[i] = 1.0;
     }
-    cs_model *m = model_new("lorentz", CS_BASELINE_NONE, CS_MODEL_SUM);
-    long w = pidx(m, "1.fwhm");
+    cs_model *m = tu_model("lorentz", CS_BASELINE_NONE, CS_MODEL_SUM);
+    long w = tu_param(m, "1.fwhm");
     m->par[w].value = -1.0; /* invalid and fixed: the model is NaN everywhere */
     m->par[w].fixed = 1;
     cs_fit_parameters par = params(CS_WEIGHT_NOISE, 0);
@@ -795,8 +758,8 @@ START_TEST(test_ftest)
     enum { N = 400 };
     double x[N], y[N], s[N];
     two_lines(x, y, s, N, 0.005, 14);
-    cs_model *m1 = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-    cs_model *m2 = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_model *m1 = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_model *m2 = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     cs_fit_parameters par = params(CS_WEIGHT_NOISE, 1);
     cs_fit_result *r1 = NULL, *r2 = NULL;
     cs_error err;
@@ -853,10 +816,10 @@ START_TEST(test_bootstrap_montecarlo)
     for (int i = 0; i < N; i++) {
         x[i] = 1e6 * i;
         s[i] = 0.02;
-        y[i] = lorentz(x[i], 140e6, 25e6, 2e7) + 0.3 + gsl_ran_gaussian(g, s[i]);
+        y[i] = tu_lorentz(x[i], 140e6, 25e6, 2e7) + 0.3 + gsl_ran_gaussian(g, s[i]);
     }
     gsl_rng_free(g);
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 1);
     par.bootstrap = 200;
     par.montecarlo = 200;
@@ -876,7 +839,7 @@ START_TEST(test_bootstrap_montecarlo)
     }
     /* reproducible from the seed, with the same workspace reused */
     cs_model_free(m);
-    m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     ck_assert(cs_fit_run(ws, m, x, y, s, NULL, N, &par, &r2, &err) == CS_OK);
     for (size_t k = 0; k < 4; k++) {
         ck_assert_double_eq(r->value[k], r2->value[k]);
@@ -888,7 +851,7 @@ START_TEST(test_bootstrap_montecarlo)
     par.weighting = CS_WEIGHT_NOISE;
     par.bootstrap = 0;
     cs_model_free(m);
-    m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     ck_assert(cs_fit_run(ws, m, x, y, NULL, NULL, N, &par, &r2, &err) == CS_OK);
     ck_assert_ptr_null(r2->boot_err);
     for (size_t k = 0; k < 4; k++)
@@ -912,14 +875,14 @@ START_TEST(test_multistart)
     cs_fit_result *r[3];
     cs_error err;
     for (int k = 0; k < 3; k++) {
-        cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
-        start(m, "1.center", 190e6);
-        start(m, "1.fwhm", 10e6);
-        start(m, "1.area", 1e7);
-        start(m, "2.center", 260e6);
-        start(m, "2.fwhm", 60e6);
-        start(m, "2.area", 1e7);
-        start(m, "base.c0", 0.0);
+        cs_model *m = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+        tu_start(m, "1.center", 190e6);
+        tu_start(m, "1.fwhm", 10e6);
+        tu_start(m, "1.area", 1e7);
+        tu_start(m, "2.center", 260e6);
+        tu_start(m, "2.fwhm", 60e6);
+        tu_start(m, "2.area", 1e7);
+        tu_start(m, "base.c0", 0.0);
         if (k == 2)
             par.multistart = 0;
         ck_assert_int_ge(cs_fit_run(NULL, m, x, y, s, NULL, N, &par, &r[k], &err), CS_ENOCONV);
@@ -942,10 +905,10 @@ START_TEST(test_bad_input)
     double x[N], y[N], s[N];
     for (int i = 0; i < N; i++) {
         x[i] = i;
-        y[i] = lorentz(i, 20, 5, 10) + 1;
+        y[i] = tu_lorentz(i, 20, 5, 10) + 1;
         s[i] = 0.1;
     }
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 1);
     cs_fit_result *r = (cs_fit_result *)&par;
     cs_error err;
@@ -1024,8 +987,8 @@ START_TEST(test_workspace_reuse)
         cs_fit_parameters par = params(CS_WEIGHT_NOISE, 1);
         cs_fit_result *ra = NULL, *rb = NULL;
         cs_error err;
-        cs_model *ma = model_new(models[k], CS_BASELINE_LINEAR, CS_MODEL_SUM);
-        cs_model *mb = model_new(models[k], CS_BASELINE_LINEAR, CS_MODEL_SUM);
+        cs_model *ma = tu_model(models[k], CS_BASELINE_LINEAR, CS_MODEL_SUM);
+        cs_model *mb = tu_model(models[k], CS_BASELINE_LINEAR, CS_MODEL_SUM);
         ck_assert_int_ge(cs_fit_run(ws, ma, x, y, NULL, NULL, sizes[k], &par, &ra, &err), CS_ENOCONV);
         ck_assert_int_ge(cs_fit_run(NULL, mb, x, y, NULL, NULL, sizes[k], &par, &rb, &err), CS_ENOCONV);
         ck_assert_int_eq(ra->status, rb->status);
@@ -1051,7 +1014,7 @@ START_TEST(test_geodesic)
     cs_fit_result *r[2];
     cs_error err;
     for (int k = 0; k < 2; k++) {
-        cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+        cs_model *m = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
         cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 1);
         par.geodesic = k;
         ck_assert_msg(cs_fit_run(NULL, m, x, y, s, NULL, N, &par, &r[k], &err) == CS_OK, "%s", err.msg);
@@ -1100,7 +1063,7 @@ START_TEST(test_noise_units)
     const double scales[] = {1e-20, 1e-9, 1e12};
     cs_fit_result *ref = NULL;
     cs_error err;
-    cs_model *m0 = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_model *m0 = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
     cs_fit_parameters par = params(CS_WEIGHT_NOISE, 1);
     ck_assert_int_eq(cs_fit_run(NULL, m0, x, y0, NULL, NULL, N, &par, &ref, &err), CS_OK);
     ck_assert_int_eq(ref->status, CS_FIT_CONVERGED);
@@ -1108,7 +1071,7 @@ START_TEST(test_noise_units)
         const double c = scales[k];
         for (int i = 0; i < N; i++)
             yc[i] = c * y0[i];
-        cs_model *m = model_new("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+        cs_model *m = tu_model("lorentz+lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
         cs_fit_result *r = NULL;
         int rc = cs_fit_run(NULL, m, x, yc, NULL, NULL, N, &par, &r, &err);
         ck_assert_msg(rc == CS_OK && r->status == CS_FIT_CONVERGED, "y x %g: %s (%s after %zu iterations)", c,
@@ -1153,7 +1116,7 @@ START_TEST(test_linear_convergence)
         cs_profile_eval(l, pl, x, N, y);
         for (int i = 0; i < N; i++)
             y[i] += gsl_ran_gaussian(g, 1.0);
-        cs_model *m = model_new("voigt+lorentz", CS_BASELINE_LINEAR, CS_MODEL_SUM);
+        cs_model *m = tu_model("voigt+lorentz", CS_BASELINE_LINEAR, CS_MODEL_SUM);
         cs_model_set_values(m, start);
         cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 0);
         cs_fit_result *r = NULL, *r2 = NULL;

@@ -17,50 +17,13 @@
 
 /* ---------------------------------------------------------------- helpers */
 
-static cs_model *model_new(const char *text, cs_baseline_kind b)
-{
-    cs_error err;
-    cs_model *m = cs_model_alloc(text, b, CS_MODEL_SUM, &err);
-    ck_assert_msg(m != NULL, "model '%s': %s", text, err.msg);
-    return m;
-}
-
-static long pidx(const cs_model *m, const char *name)
-{
-    long i = cs_model_param_index(m, name);
-    ck_assert_msg(i >= 0, "no parameter '%s'", name);
-    return i;
-}
-
-static void start(cs_model *m, const char *name, double v)
-{
-    long i = pidx(m, name);
-    m->par[i].value = v;
-    m->par[i].user_start = 1;
-}
-
-static void constrain(cs_model *m, int (*fn)(cs_model *, const char *, cs_error *), const char *text)
-{
-    cs_error err;
-    int rc = fn(m, text, &err);
-    ck_assert_msg(rc == CS_OK, "constraint '%s': %s", text, err.msg);
-}
-
-/* Area-normalised Lorentzian: area (h/pi) / (u^2 + h^2), h = fwhm/2 (profile.h's convention;
- * the Cauchy density, common practice). */
-static double lorentz(double x, double c, double fwhm, double area)
-{
-    double h = 0.5 * fwhm, u = x - c;
-    return area * (h / 3.14159265358979323846) / (u * u + h * h);
-}
-
 /* One line at 150 MHz, FWHM 20 MHz, area 1e7 (peak about 0.32) on a 0.1 floor, with a
  * deterministic ripple of 0.01 standing in for noise (so chi2 > 0); sigma 0.01. */
 static void one_line(double *x, double *y, double *s, int n)
 {
     for (int i = 0; i < n; i++) {
         x[i] = 1e6 * i;
-        y[i] = lorentz(x[i], 150e6, 20e6, 1e7) + 0.1 + 0.01 * sin(0.71 * i);
+        y[i] = tu_lorentz(x[i], 150e6, 20e6, 1e7) + 0.1 + 0.01 * sin(0.71 * i);
         s[i] = 0.01;
     }
 }
@@ -147,11 +110,11 @@ START_TEST(test_not_converged)
     enum { N = 300 };
     double x[N], y[N], s[N];
     one_line(x, y, s, N);
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST);
-    start(m, "1.center", 120e6);
-    start(m, "1.fwhm", 60e6);
-    start(m, "1.area", 3e6);
-    start(m, "base.c0", 0.0);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m, "1.center", 120e6);
+    tu_start(m, "1.fwhm", 60e6);
+    tu_start(m, "1.area", 3e6);
+    tu_start(m, "base.c0", 0.0);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA);
     par.bootstrap = 5;
     par.montecarlo = 5;
@@ -193,21 +156,21 @@ START_TEST(test_singular)
     one_line(x, y, s, N);
     cs_model *m;
     if (_i == 0) {
-        m = model_new("gauss+gauss", CS_BASELINE_CONST);
-        constrain(m, cs_model_tie, "2.center=1.center");
-        constrain(m, cs_model_tie, "2.fwhm=1.fwhm");
-        start(m, "1.center", 151e6);
-        start(m, "1.fwhm", 22e6);
-        start(m, "1.area", 5e6);
-        start(m, "2.area", 5e6);
-        start(m, "base.c0", 0.1);
+        m = tu_model("gauss+gauss", CS_BASELINE_CONST, CS_MODEL_SUM);
+        tu_constrain(m, cs_model_tie, "2.center=1.center");
+        tu_constrain(m, cs_model_tie, "2.fwhm=1.fwhm");
+        tu_start(m, "1.center", 151e6);
+        tu_start(m, "1.fwhm", 22e6);
+        tu_start(m, "1.area", 5e6);
+        tu_start(m, "2.area", 5e6);
+        tu_start(m, "base.c0", 0.1);
     } else {
-        m = model_new("lorentz", CS_BASELINE_EXP);
-        start(m, "1.center", 151e6);
-        start(m, "1.fwhm", 22e6);
-        start(m, "1.area", 1e7);
-        constrain(m, cs_model_fix, "base.amp=0");
-        start(m, "base.rate", 1e-9);
+        m = tu_model("lorentz", CS_BASELINE_EXP, CS_MODEL_SUM);
+        tu_start(m, "1.center", 151e6);
+        tu_start(m, "1.fwhm", 22e6);
+        tu_start(m, "1.area", 1e7);
+        tu_constrain(m, cs_model_fix, "base.amp=0");
+        tu_start(m, "base.rate", 1e-9);
         /* the floor of the data is then not modelled; subtract it */
         for (int i = 0; i < N; i++)
             y[i] -= 0.1;
@@ -222,14 +185,14 @@ START_TEST(test_singular)
     ck_assert_msg(r->status == CS_FIT_SINGULAR, "status %s", cs_fit_status_name(r->status));
     ck_assert_str_eq(cs_fit_status_name(r->status), "singular covariance");
     if (_i == 0) {
-        ck_assert(isnan(r->err[pidx(m, "1.area")]) && isnan(r->err[pidx(m, "2.area")]));
-        ck_assert(isfinite(r->err[pidx(m, "base.c0")]) && r->err[pidx(m, "base.c0")] > 0);
+        ck_assert(isnan(r->err[tu_param(m, "1.area")]) && isnan(r->err[tu_param(m, "2.area")]));
+        ck_assert(isfinite(r->err[tu_param(m, "base.c0")]) && r->err[tu_param(m, "base.c0")] > 0);
     } else {
-        long k = pidx(m, "base.rate");
+        long k = tu_param(m, "base.rate");
         ck_assert(isnan(r->err[k]));
         ck_assert(isnan(r->cov[k * r->nparams + k]));
-        ck_assert_double_eq(r->err[pidx(m, "base.amp")], 0.0);
-        double ec = r->err[pidx(m, "1.center")];
+        ck_assert_double_eq(r->err[tu_param(m, "base.amp")], 0.0);
+        double ec = r->err[tu_param(m, "1.center")];
         ck_assert_msg(isfinite(ec) && ec > 0, "centre error %g", ec); /* still determined */
     }
     check_contract(m, r);
@@ -255,15 +218,15 @@ START_TEST(test_at_bound)
                                    "1.fwhm=35MHz:200MHz"};
     static const char *which[4] = {"1.fwhm", "1.fwhm", "1.area", "1.fwhm"};
     static const int side[4] = {1, 2, 1, 1};
-    cs_model *m = model_new("lorentz", CS_BASELINE_CONST);
-    start(m, "1.center", 151e6);
-    start(m, "1.fwhm", _i == 1 ? 8e6 : 40e6);
-    start(m, "1.area", _i == 2 ? 3e7 : 1e7);
-    start(m, "base.c0", 0.1);
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    tu_start(m, "1.center", 151e6);
+    tu_start(m, "1.fwhm", _i == 1 ? 8e6 : 40e6);
+    tu_start(m, "1.area", _i == 2 ? 3e7 : 1e7);
+    tu_start(m, "base.c0", 0.1);
     if (_i == 3) /* no starting values: all from cs_model_guess */
         for (size_t k = 0; k < m->nparams; k++)
             m->par[k].user_start = 0;
-    constrain(m, cs_model_bound, bound[_i]);
+    tu_constrain(m, cs_model_bound, bound[_i]);
     cs_fit_parameters par = params(CS_WEIGHT_SIGMA);
     par.guess = _i == 3;
     par.bootstrap = 8;
@@ -274,11 +237,11 @@ START_TEST(test_at_bound)
     ck_assert_msg(rc == CS_OK, "%s: %s", bound[_i], err.msg);
     ck_assert_msg(r->status == CS_FIT_CONVERGED, "%s: %s (%s)", bound[_i], cs_fit_status_name(r->status),
                   cs_fit_stop_name(r->stop));
-    long k = pidx(m, which[_i]);
+    long k = tu_param(m, which[_i]);
     ck_assert_msg(r->at_bound[k] == side[_i], "%s: at_bound %d, value %g", bound[_i], r->at_bound[k], r->value[k]);
     ck_assert(isnan(r->err[k]));
     /* the centre is still determined (conditional on the bound) */
-    double ec = r->err[pidx(m, "1.center")];
+    double ec = r->err[tu_param(m, "1.center")];
     ck_assert_msg(isfinite(ec) && ec > 0, "centre error %g", ec);
     /* a derived quantity that needs the bounded parameter has no error: the FWHM for a width */
     if (_i != 2)
@@ -308,31 +271,31 @@ START_TEST(test_model_not_finite)
             x[i] = i;
             y[i] = 1.0 + 0.01 * sin(0.3 * i);
         }
-        m = model_new("lorentz", CS_BASELINE_EXP);
-        start(m, "1.center", 150.0);
-        start(m, "1.fwhm", 10.0);
-        start(m, "1.area", 1.0);
-        start(m, "base.amp", 1.0);
-        constrain(m, cs_model_fix, "base.rate=-10");
+        m = tu_model("lorentz", CS_BASELINE_EXP, CS_MODEL_SUM);
+        tu_start(m, "1.center", 150.0);
+        tu_start(m, "1.fwhm", 10.0);
+        tu_start(m, "1.area", 1.0);
+        tu_start(m, "base.amp", 1.0);
+        tu_constrain(m, cs_model_fix, "base.rate=-10");
     } else if (_i == 1) {
         one_line(x, y, s, N);
-        m = model_new("lorentz", CS_BASELINE_CONST);
-        long w = pidx(m, "1.fwhm");
+        m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+        long w = tu_param(m, "1.fwhm");
         m->par[w].value = -1.0;
         m->par[w].fixed = 1;
-        start(m, "1.center", 150e6);
-        start(m, "1.area", 1e7);
-        start(m, "base.c0", 0.1);
+        tu_start(m, "1.center", 150e6);
+        tu_start(m, "1.area", 1e7);
+        tu_start(m, "base.c0", 0.1);
     } else {
         for (int i = 0; i < N; i++) {
             x[i] = 1e6 * i;
             y[i] = (i % 2) ? 1e300 : 1e-300;
         }
-        m = model_new("lorentz", CS_BASELINE_CONST);
-        start(m, "1.center", 150e6);
-        start(m, "1.fwhm", 20e6);
-        start(m, "1.area", 1e7);
-        start(m, "base.c0", 0.0);
+        m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+        tu_start(m, "1.center", 150e6);
+        tu_start(m, "1.fwhm", 20e6);
+        tu_start(m, "1.area", 1e7);
+        tu_start(m, "base.c0", 0.0);
     }
     par.bootstrap = 4;
     cs_fit_result *r = NULL;
@@ -380,11 +343,11 @@ START_TEST(test_ftest_needs_minima)
     for (int pass = 0; pass < 2; pass++) {
         for (int k = 0; k < 2; k++) {
             /* nested: a constant baseline is a linear one with zero slope */
-            m[k] = model_new("lorentz", k == 0 ? CS_BASELINE_CONST : CS_BASELINE_LINEAR);
-            start(m[k], "1.center", 140e6);
-            start(m[k], "1.fwhm", 40e6);
-            start(m[k], "1.area", 5e6);
-            start(m[k], "base.c0", 0.0);
+            m[k] = tu_model("lorentz", k == 0 ? CS_BASELINE_CONST : CS_BASELINE_LINEAR, CS_MODEL_SUM);
+            tu_start(m[k], "1.center", 140e6);
+            tu_start(m[k], "1.fwhm", 40e6);
+            tu_start(m[k], "1.area", 5e6);
+            tu_start(m[k], "base.c0", 0.0);
             cs_fit_parameters par = params(CS_WEIGHT_SIGMA);
             if (pass == 0 && k == 1)
                 par.max_iter = 1;

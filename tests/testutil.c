@@ -79,3 +79,38 @@ int tu_close(double a, double b, double rtol)
         return fabs(a) <= rtol;
     return fabs(a - b) <= rtol * fabs(b);
 }
+
+cs_model *tu_model(const char *text, cs_baseline_kind b, cs_model_mode mode)
+{
+    cs_error err;
+    cs_model *m = cs_model_alloc(text, b, mode, &err);
+    ck_assert_msg(m != NULL, "model '%s': %s", text, err.msg);
+    return m;
+}
+
+long tu_param(const cs_model *m, const char *name)
+{
+    long i = cs_model_param_index(m, name);
+    ck_assert_msg(i >= 0, "no parameter '%s'", name);
+    return i;
+}
+
+void tu_start(cs_model *m, const char *name, double v)
+{
+    long i = tu_param(m, name);
+    m->par[i].value = v;
+    m->par[i].user_start = 1;
+}
+
+void tu_constrain(cs_model *m, int (*fn)(cs_model *, const char *, cs_error *), const char *text)
+{
+    cs_error err;
+    int rc = fn(m, text, &err);
+    ck_assert_msg(rc == CS_OK, "constraint '%s': %s", text, err.msg);
+}
+
+double tu_lorentz(double x, double c, double fwhm, double area)
+{
+    double h = 0.5 * fwhm, u = x - c;
+    return area * (h / 3.14159265358979323846) / (u * u + h * h);
+}
