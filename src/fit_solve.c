@@ -34,7 +34,7 @@
  * subspace method the same iterations but 15-25 % of the fits ending without progress near the
  * minimum (their trial steps come from the undamped Gauss-Newton step). The BLAS calls behind
  * GSL (J^T J, J^T f, J dx, norms) are a fifth of a fit's instructions with GSL's reference CBLAS
- * and a twentieth with OpenBLAS, which the build uses when it is installed (CMakeLists.txt).
+ * and a twentieth with OpenBLAS (-DCS_OPENBLAS=ON; off by default, see CMakeLists.txt).
  *
  * One model evaluation per iteration. The residual callback evaluates model and Jacobian
  * together (a Voigt value and all its derivatives come from one Faddeeva evaluation) and keeps
@@ -98,10 +98,11 @@
  * "converged" by a step that happens to fall below xtol, or as "not converged" at the limit,
  * is decided by the rounding of J^T J (GSL's reference CBLAS or OpenBLAS): seen on the
  * whole-record fits of `collshift split` (sech2+lorentz on a 2^17-sample record's PSD band,
- * first reweighted pass: the equal-weight pass before it stops after one step on GSL's gradient
- * test, which is absolute when the cost is below 1 (PSD values ~1e-10 here), so the reweighted
- * pass starts from the automatic starting values and crawls along a valley where the
- * Lorentzian narrows and grows for ~190 steps; tests/cli/split_whole.sh). */
+ * first reweighted pass, which crawled along a valley where the Lorentzian narrows and grows for
+ * ~190 steps; tests/cli/split_whole.sh). (GSL's gradient test is absolute when the cost is below
+ * 1: unweighted fits therefore scale their residuals by a noise scale of the data,
+ * cs_fit_impl_noise_scale, so that data in any unit, PSD values of 1e-20 included, are fitted
+ * alike.) */
 #include <collshift/fit.h>
 
 #include "fit_impl.h"
