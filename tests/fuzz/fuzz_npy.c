@@ -14,13 +14,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         o.format = pass == 0 ? CS_FORMAT_NPY : CS_FORMAT_AUTO;
         if (pass == 1)
             o.sample_rate_hz = 1e6;
-        cs_loaded l;
-        cs_loaded_init(&l);
-        cs_error err;
-        cs_error_clear(&err);
-        int rc = cs_io_load(path, &o, &l, &err);
-        fuzz_assert_load(rc, &l, &err, o.min_points);
-        cs_loaded_release(&l);
+        fuzz_load_and_check(path, &o);
     }
     return 0;
 }

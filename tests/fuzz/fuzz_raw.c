@@ -28,12 +28,6 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     if (data[1] & 64)
         o.min_points = data[3];
     const char *path = fuzz_write_tmp(data + 4, size - 4, ".bin");
-    cs_loaded l;
-    cs_loaded_init(&l);
-    cs_error err;
-    cs_error_clear(&err);
-    int rc = cs_io_load(path, &o, &l, &err);
-        fuzz_assert_load(rc, &l, &err, o.min_points);
-    cs_loaded_release(&l);
+    fuzz_load_and_check(path, &o);
     return 0;
 }

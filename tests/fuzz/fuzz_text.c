@@ -17,13 +17,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         cs_load_options_init(&o);
         o.format = CS_FORMAT_TEXT;
         o.kind = kinds[k];
-        cs_loaded l;
-        cs_loaded_init(&l);
-        cs_error err;
-        cs_error_clear(&err);
-        int rc = cs_io_load(path, &o, &l, &err);
-        fuzz_assert_load(rc, &l, &err, o.min_points);
-        cs_loaded_release(&l);
+        fuzz_load_and_check(path, &o);
     }
     return 0;
 }
