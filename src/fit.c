@@ -52,6 +52,7 @@ cs_fit_parameters cs_fit_default_parameters(void)
     p.bootstrap = 0;
     p.montecarlo = 0;
     p.seed = 1;
+    p.bin_width = 0.0;
     return p;
 }
 
@@ -94,6 +95,13 @@ static void ws_release(cs_fit_workspace *w)
         free(*d[i]);
         *d[i] = NULL;
     }
+    double **q[] = {&w->xq, &w->mq, &w->wq, &w->Jq};
+    for (size_t i = 0; i < sizeof q / sizeof q[0]; i++) {
+        free(*q[i]);
+        *q[i] = NULL;
+    }
+    w->qmax = 0;
+    w->bin_hw = 0.0;
     free(w->fr);
     free(w->freeof);
     free(w->tie_idx);
@@ -525,6 +533,15 @@ int cs_fit_run(cs_fit_workspace *ws, cs_model *m, const double *x, const double 
     ws->weighting = wt;
     if ((rc = load_data(ws, x, y, sigma, mask, n, err)) != CS_OK)
         goto done;
+    if (!(par->bin_width >= 0.0 && isfinite(par->bin_width))) {
+        rc = cs_error_set(err, CS_EINVAL, NULL, -1, -1, "fit: bin width %g must be finite and >= 0",
+                          par->bin_width);
+        goto done;
+    }
+    if ((rc = cs_fit_impl_bins(ws, par->bin_width)) != CS_OK) {
+        cs_error_set(err, rc, NULL, -1, -1, "fit: out of memory");
+        goto done;
+    }
     if (par->guess &&
         (rc = cs_model_guess(m, ws->x, ws->y, sigma ? ws->sig : NULL, ws->n, err)) != CS_OK)
         goto done;

@@ -85,6 +85,13 @@ struct cs_fit_workspace {
     int last_nan;           /* the last evaluation produced NaN/Inf or an invalid model */
     size_t nfev, njev;
 
+    /* binned data (cs_fit_parameters.bin_width > 0): the model is evaluated at two
+       Gauss-Legendre nodes per point and averaged (eval_core); qmax nodes allocated */
+    double bin_hw;          /* half the distance between a point's two nodes; 0: no bins */
+    size_t qmax;
+    double *xq, *mq, *wq;   /* 2n nodes, the model there, model scratch */
+    double *Jq;             /* 2n x nparams Jacobian at the nodes */
+
     /* covariance scratch (pmax x pmax) and per-parameter scratch */
     double *cwork, *gram, *cfree;      /* pmax x pmax */
     double *colnorm, *nrm, *und;       /* pmax: covariance (during a solve: the Gauss-Newton
@@ -121,6 +128,10 @@ CS_FIT_INTERNAL void cs_fit_impl_check_polish(cs_fit_workspace *w, double *p, fi
 CS_FIT_INTERNAL int cs_fit_impl_eval(cs_fit_workspace *w, const double *p);
 /* Residual weights for the current data (recomputed per replica for Neyman weights). */
 CS_FIT_INTERNAL void cs_fit_impl_weights(cs_fit_workspace *w);
+/* Nodes of binned data for the points w->x[0..n) with bin width `width` (0: point values); the
+ * node arrays are reserved here. Returns CS_OK or CS_ENOMEM. */
+CS_FIT_INTERNAL int cs_fit_impl_bins(cs_fit_workspace *w, double width);
+
 /* Robust scale of y[0..n) for NOISE weighting (work: n scratch values). */
 CS_FIT_INTERNAL double cs_fit_impl_noise_scale(const double *y, size_t n, double *work);
 /* Clamp p into [lo, hi] of free parameter f, keeping a small margin inside a bound. */

@@ -292,11 +292,60 @@ void cs_fit_impl_weights(cs_fit_workspace *w)
     }
 }
 
+int cs_fit_impl_bins(cs_fit_workspace *w, double width)
+{
+    const size_t n = w->n, np = w->np, nq = 2 * n;
+    w->bin_hw = 0.0;
+    if (!(width > 0.0))
+        return CS_OK;
+    if (nq > w->qmax || np > w->pmax) {
+        size_t pp = w->pmax;
+        if (nq > ((size_t)-1) / sizeof(double) / pp)
+            return CS_ENOMEM;
+        double **q[] = {&w->xq, &w->mq, &w->wq, &w->Jq};
+        for (size_t i = 0; i < sizeof q / sizeof q[0]; i++) {
+            free(*q[i]);
+            *q[i] = malloc(nq * (i == 3 ? pp : 1) * sizeof(double));
+        }
+        w->qmax = w->xq && w->mq && w->wq && w->Jq ? nq : 0;
+        if (!w->qmax)
+            return CS_ENOMEM;
+    }
+    /* two-point Gauss-Legendre nodes of [x - width/2, x + width/2]: x -+ (width/2)/sqrt(3) */
+    w->bin_hw = 0.5 * width / sqrt(3.0);
+    for (size_t i = 0; i < n; i++) {
+        w->xq[2 * i] = w->x[i] - w->bin_hw;
+        w->xq[2 * i + 1] = w->x[i] + w->bin_hw;
+    }
+    w->cache_ok = 0;
+    w->p_evaluated = 0;
+    return CS_OK;
+}
+
+/* The model and its Jacobian at w->p for every point: at x, or for binned data the mean of the
+ * two nodes' values (the Gauss-Legendre weights are equal). */
+static int eval_model(cs_fit_workspace *w)
+{
+    const size_t n = w->n, np = w->np;
+    if (!(w->bin_hw > 0.0))
+        return cs_model_eval_jac(w->m, w->p, w->x, n, w->mval, w->Jfull, np, w->work) == CS_OK;
+    if (cs_model_eval_jac(w->m, w->p, w->xq, 2 * n, w->mq, w->Jq, np, w->wq) != CS_OK)
+        return 0;
+    for (size_t i = 0; i < n; i++) {
+        w->mval[i] = 0.5 * (w->mq[2 * i] + w->mq[2 * i + 1]);
+        const double *a = w->Jq + 2 * i * np, *b = a + np;
+        double *row = w->Jfull + i * np;
+        for (size_t j = 0; j < np; j++)
+            row[j] = 0.5 * (a[j] + b[j]);
+    }
+    return 1;
+}
+
 /* Model, Jacobian and residuals at w->p. Returns 1 when everything is finite. */
 static int eval_core(cs_fit_workspace *w)
 {
     const size_t n = w->n;
-    int ok = cs_model_eval_jac(w->m, w->p, w->x, n, w->mval, w->Jfull, w->np, w->work) == CS_OK;
+    int ok = eval_model(w);
     const double *y = w->ycur;
     const int cash = w->weighting == CS_WEIGHT_CASH;
     for (size_t i = 0; ok && i < n; i++) {

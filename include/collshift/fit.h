@@ -70,6 +70,13 @@ typedef struct cs_fit_parameters {
                                 Gaussian noise of the given sigma (SIGMA) or of sqrt(chi2/dof)
                                 (NOISE), or Poisson deviates of the model (POISSON, CASH) */
     unsigned long seed;      /* for multistart, bootstrap, Monte Carlo (default 1) */
+    double bin_width;        /* 0 (default): y_i is the spectrum AT x_i. > 0: y_i is the MEAN of
+                                the spectrum over the bin [x_i - bin_width/2, x_i + bin_width/2]
+                                (blocks of a fine spectrum averaged, detector pixels), and the
+                                model is averaged over each bin by two-point Gauss-Legendre
+                                quadrature (nodes x_i +- bin_width / (2 sqrt 3); exact for cubics,
+                                relative error (bin_width / FWHM)^4 / 11 at a Lorentzian's
+                                peak; Abramowitz & Stegun 25.4.29-30). Same units as x. */
 } cs_fit_parameters;
 
 cs_fit_parameters cs_fit_default_parameters(void);
