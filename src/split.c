@@ -166,6 +166,7 @@ static void fit_init(cs_split_fit *f)
     cs_split_impl_line_nan(&f->line);
     f->significance = f->significance_min = NAN;
     f->fmin_hz = f->fmax_hz = f->df_hz = f->enbw_hz = f->err_scale = f->energy_scale = NAN;
+    f->block = 1;
 }
 
 /* 1 when text is a gate-aware model, 0 when it is a plain one, -1 when neither. */

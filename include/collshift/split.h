@@ -197,6 +197,10 @@ typedef struct cs_split_params {
     const char *tail_plain;       /* likewise for the tail era (default "lorentz") */
     const char *whole_model;      /* whole-record model (default "sech2+lorentz"); NULL or ""
                                      = no whole-record estimate */
+    size_t whole_block;           /* bins averaged into one fitted point of the whole-record
+                                     band: 0 (default) automatic (about 1024 blocks, each at
+                                     most 1/12 of the narrowest fitted line; src/split_fit.c),
+                                     1 every bin, K blocks of K bins */
     cs_baseline_kind baseline;    /* floor of every plain fit (default CS_BASELINE_CONST) */
     cs_gatefit_noise noise;       /* gate-aware fits' noise (gatefit.h; default residuals) */
     double noise_sd;              /* CS_GATEFIT_NOISE_GIVEN: sigma per real component; 0 = the
@@ -239,6 +243,8 @@ typedef struct cs_split_fit {
     double df_hz, enbw_hz, err_scale;     /* bin, ENBW, factor applied to the errors
                                              (sqrt(enbw/df) x sqrt(chi2/dof) when > 1) */
     double energy_scale;                  /* dt sum w^2: PSD area -> energy */
+    size_t block;                         /* bins averaged into one fitted point (the whole
+                                             record's band, see split_fit.c); 1: none */
     /* the fit itself (owned; at most one of the two, NULL when no fit ran) */
     cs_gatefit_result *gfit;
     cs_model *pmodel;

@@ -50,6 +50,9 @@ const char *const cmd_split_usage[] = {
     "                        with the burst era, its narrowest with the tail era\n"
     "  --whole-window NAME   window of the whole-record spectrum (default rect: the signal starts\n"
     "                        and ends inside the record, and a taper would reshape the tail)\n"
+    "  --whole-block K       bins averaged into one fitted point of the whole-record band (default\n"
+    "                        auto: about 1024 points, each at most 1/12 of the narrowest line;\n"
+    "                        1 = every bin); the model is averaged over each block\n"
     "  --noise KIND          noise level of the gate-aware fits: residuals (default: the fit's own\n"
     "                        scatter, errors scaled), floor (the record's quiet stretch), record\n"
     "                        (robust estimate over the record), or a number (per I or Q component)\n"
@@ -101,7 +104,8 @@ typedef struct split_opts {
 
 enum {
     S_GATE = 1, S_WINDOW, S_LATE_WINDOW, S_WHOLE_WINDOW, S_PAD, S_LO, S_REF, S_BURST_MODEL, S_TAIL_MODEL,
-    S_WHOLE_MODEL, S_NOISE, S_NO_PENCIL, S_AGREE, S_POWER, S_SWEEP, S_SWEEP_TABLE, S_JSON, S_TABLE, S_QUIET, S_PLOT
+    S_WHOLE_MODEL, S_NOISE, S_NO_PENCIL, S_AGREE, S_POWER, S_SWEEP, S_SWEEP_TABLE, S_JSON, S_TABLE, S_QUIET, S_PLOT,
+    S_WHOLE_BLOCK
 };
 
 static int usage_error(const char *fmt, ...)
@@ -193,6 +197,7 @@ static int parse_args(int argc, char **argv, split_opts *so, cs_load_options *lo
         {"burst-model", required_argument, NULL, S_BURST_MODEL},
         {"tail-model", required_argument, NULL, S_TAIL_MODEL},
         {"whole-model", required_argument, NULL, S_WHOLE_MODEL},
+        {"whole-block", required_argument, NULL, S_WHOLE_BLOCK},
         {"noise", required_argument, NULL, S_NOISE},
         {"no-pencil", no_argument, NULL, S_NO_PENCIL},
         {"agree-nsigma", required_argument, NULL, S_AGREE},
@@ -225,6 +230,19 @@ static int parse_args(int argc, char **argv, split_opts *so, cs_load_options *lo
                 rc = usage_error("--pad '%s': expected a whole number from 1 to 64", optarg);
             else
                 p->pad = (size_t)v;
+            break;
+        }
+        case S_WHOLE_BLOCK: {
+            errno = 0;
+            long long v = strcmp(optarg, "auto") == 0 ? 0 : strtoll(optarg, &end, 10);
+            if (v == 0 && strcmp(optarg, "auto") != 0)
+                v = -1;
+            else if (v != 0 && (end == optarg || *end || errno == ERANGE))
+                v = -1;
+            if (v < 0 || v > 65536)
+                rc = usage_error("--whole-block '%s': expected auto or a whole number from 1 to 65536", optarg);
+            else
+                p->whole_block = (size_t)v;
             break;
         }
         case S_LO: rc = parse_freq("lo", optarg, &p->lo_hz); break;
@@ -427,7 +445,8 @@ static json_t *fit_json(const cs_split_fit *f)
         json_object_set_new(o, "chi2", cli_jnum(r->chi2));
         json_object_set_new(o, "dof", json_integer((json_int_t)r->dof));
         json_object_set_new(o, "redchi2", cli_jnum(r->redchi2));
-        json_object_set_new(o, "weights", json_string("sigma = first-pass model / sqrt(shots)"));
+        json_object_set_new(o, "weights", json_string(f->block > 1 ? "sigma = first-pass model x sqrt(g(K) / (K shots)), K bins per block"
+                                                                   : "sigma = first-pass model / sqrt(shots)"));
         json_object_set_new(o, "error_scale", cli_jnum(f->err_scale));
         json_object_set_new(o, "energy_scale_s", cli_jnum(f->energy_scale));
         json_object_set_new(o, "niter", json_integer((json_int_t)r->niter));
@@ -437,6 +456,8 @@ static json_t *fit_json(const cs_split_fit *f)
         json_object_set_new(fr, "nfft", json_integer((json_int_t)f->nfft));
         json_object_set_new(fr, "df_hz", cli_jnum(f->df_hz));
         json_object_set_new(fr, "enbw_hz", cli_jnum(f->enbw_hz));
+        json_object_set_new(fr, "block_bins", json_integer((json_int_t)f->block));
+        json_object_set_new(fr, "block_hz", cli_jnum((double)f->block * f->df_hz));
         json_object_set_new(fr, "shots", json_integer((json_int_t)f->nshots));
         json_object_set_new(fr, "first_sample", json_integer((json_int_t)f->first));
         json_object_set_new(fr, "samples", json_integer((json_int_t)f->m));
@@ -602,6 +623,10 @@ static json_t *settings_json(const split_opts *so)
     json_object_set_new(o, "early_window", json_string(cs_window_format(&p->early_window, wb, sizeof wb)));
     json_object_set_new(o, "late_window", json_string(cs_window_format(&p->late_window, wb, sizeof wb)));
     json_object_set_new(o, "whole_window", json_string(cs_window_format(&p->whole_window, wb, sizeof wb)));
+    if (p->whole_block)
+        json_object_set_new(o, "whole_block", json_integer((json_int_t)p->whole_block));
+    else
+        json_object_set_new(o, "whole_block", json_string("auto"));
     json_object_set_new(o, "pad", json_integer((json_int_t)p->pad));
     json_object_set_new(o, "lo_hz", cli_jnum(p->lo_hz));
     json_object_set_new(o, "ref_hz", cli_jnum(p->ref_hz));
@@ -674,8 +699,8 @@ static void print_era(const cs_split_shot *s, cs_split_era e)
                s->is_complex ? "I/Q component" : "sample", cs_gatefit_noise_name(f->gfit->noise), f->gfit->redchi2,
                f->gfit->redchi2 > 2 ? ": the model does not describe the gate" : "");
     else if (f->pfit)
-        printf("    fit     chi2/dof %.3g, errors x %.3g (correlated bins%s)\n", f->pfit->redchi2, f->err_scale,
-               f->pfit->redchi2 > 1 ? " and chi2/dof" : "");
+        printf("    fit     chi2/dof %.3g, errors x %.3g (correlated %s%s)\n", f->pfit->redchi2, f->err_scale,
+               f->block > 1 ? "blocks" : "bins", f->pfit->redchi2 > 1 ? " and chi2/dof" : "");
 }
 
 /* A z-score for the summary, "undefined" when it could not be computed. */

@@ -12,6 +12,8 @@ expect_code 2 "$CS_BIN" split "$R" --gate "middle=1us:2us";     expect_in "$TMP/
 expect_code 2 "$CS_BIN" split "$R" --gate "early=peak-2w";      expect_in "$TMP/err" "--gate 'early=peak-2w'"
 expect_code 2 "$CS_BIN" split "$R" --tail-model "decay+lorentz"; expect_in "$TMP/err" "--tail-model 'decay+lorentz'"
 expect_code 2 "$CS_BIN" split "$R" --sweep "late-start=1w:6w";  expect_in "$TMP/err" "expected FROM:TO:N"
+expect_code 2 "$CS_BIN" split "$R" --whole-block 0;             expect_in "$TMP/err" "--whole-block '0'"
+expect_code 2 "$CS_BIN" split "$R" --whole-block 2x;            expect_in "$TMP/err" "expected auto or a whole number"
 expect_code 2 "$CS_BIN" split "$R" --pad 0;                     expect_in "$TMP/err" "--pad '0'"
 expect_code 2 "$CS_BIN" split "$R" --noise loud;                expect_in "$TMP/err" "--noise 'loud'"
 expect_code 2 "$CS_BIN" split "$R" --sweep-table "$TMP/x.csv";  expect_in "$TMP/err" "needs --sweep"
@@ -63,7 +65,7 @@ within(d["era_shift_hz"], d["era_shift_hz_err"], val("true_burst_offset") - val(
 # every choice that shaped the answer
 s = d["settings"]
 for k in ("gate_early", "gate_late", "early_window", "late_window", "whole_window", "pad", "burst_model",
-          "tail_model", "whole_model", "baseline", "noise", "sweep", "agree_nsigma"):
+          "tail_model", "whole_model", "whole_block", "baseline", "noise", "sweep", "agree_nsigma"):
     assert k in s, k
 assert s["late_window"] == "rect" and s["pad"] == 2 and s["burst_model"] == "burst" and s["tail_model"] == "decay"
 g = {x["era"]: x for x in d["gates"]}
@@ -74,6 +76,9 @@ assert d["burst_detect"]["found"]
 sh = d["shots"][0]
 assert abs(sh["lo_hz"] - lo) < 1 and abs(sh["reference_hz"] - ref) < 1 and sh["reference_from"] == "metadata"
 assert sh["whole_record"]["fit"]["model"] == "sech2+lorentz"
+fr = sh["whole_record"]["fit"]["fit_range"]
+assert s["whole_block"] == "auto" and fr["block_bins"] >= 1
+assert abs(fr["block_hz"] - fr["block_bins"] * fr["df_hz"]) <= 1e-9 * fr["block_hz"]
 assert set(sh["agreement"]["tail"]) >= {"whole_record", "pencil"}
 for e in ("burst", "tail"):
     z = sh["agreement"][e]["whole_record"]
