@@ -1,28 +1,33 @@
 /* Decimal text to double, exactly as strtod rounds it, without strtod for common numbers. */
 /*
- * cs_decimal_to_double() decides the plain decimal numbers of data files - an optional sign,
- * digits with an optional '.', an optional exponent, at most 19 significant digits, decimal
+ * cs_decimal_to_double() (and io_decimal_scan(), its inline scanner in io_number_impl.h, which
+ * the text loader runs on its fields) decides the plain decimal numbers of data files - an optional
+ * sign, digits with an optional '.', an optional exponent, at most 19 significant digits, decimal
  * exponent within [-342, 308], a finite result - and leaves everything else (hexadecimal,
  * inf/nan words, blanks, longer mantissas, far exponents, overflow) to the caller's strtod.
  * When it decides, the value is bit-identical to strtod's in the "C" locale with the default
  * rounding (to nearest, ties to even; collshift never changes the rounding mode).
  *
- * The number is read as w * 10^q, with w < 10^19 an integer. Then:
+ * The number is read as w * 10^q, with w < 10^19 an integer (the digits are read as described in
+ * io_number_impl.h). Then:
  *  1. Clinger's fast path (W. D. Clinger, "How to read floating point numbers accurately",
- *     PLDI 1990): when w <= 2^53 and |q| <= 22, both w and 10^|q| are exact doubles, so one
- *     correctly rounded multiplication or division gives the correctly rounded result.
+ *     PLDI 1990), inline in io_decimal_scan: when w <= 2^53 and |q| <= 22, both w and 10^|q|
+ *     are exact doubles, so one correctly rounded multiplication or division gives the
+ *     correctly rounded result.
  *  2. Otherwise the Eisel-Lemire algorithm (D. Lemire, "Number parsing at a gigabyte per
- *     second", Software: Practice and Experience 51(8), 1700-1727, 2021): w, normalised to 64
- *     bits, is multiplied by a 128-bit approximation of 5^q (table below, as in the paper's
- *     reference implementation: for q >= 0 the top 128 bits of 5^q; for q < 0,
- *     floor(2^b / 5^-q) + 1 cut to 128 bits, with b = bitlength(5^-q) + 127 for q >= -27 and
- *     2 bitlength(5^-q) + 128 below; generated with exact integers in Python); the upper bits
+ *     second", Software: Practice and Experience 51(8), 1700-1727, 2021), io_number_slow
+ *     below: w, normalised to 64 bits, is multiplied by a 128-bit approximation of 5^q (table
+ *     below, as in the paper's reference implementation: for q >= 0 the top 128 bits of 5^q;
+ *     for q < 0, floor(2^b / 5^-q) + 1 cut to 128 bits, with b = bitlength(5^-q) + 127 for
+ *     q >= -27 and 2 bitlength(5^-q) + 128 below; generated with exact integers in Python);
+ *     the upper bits
  *     of the product give the 54 leading bits of the result, the binary exponent comes from
  *     the integer approximation floor(q log2(10)) = (217706 q) >> 16. In the rare case where
  *     the truncated product cannot decide the rounding, the function returns 0 (strtod then).
  * FLT_EVAL_METHOD must be 0 for step 1 (no extended intermediate precision); otherwise
  * step 1 is skipped.
  */
+#include "io_number_impl.h"
 #include "io_text_impl.h"
 
 #include <float.h>
@@ -775,71 +780,8 @@ static int eisel_lemire(uint64_t w, int q, uint64_t *bits)
     return 1;
 }
 
-static int is_digit(char ch)
+int io_number_slow(uint64_t w, long q, int neg, double *v)
 {
-    return ch >= '0' && ch <= '9';
-}
-
-int cs_decimal_to_double(const char *b, const char *e, double *v)
-{
-    static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
-                                 1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
-                                 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
-    const char *p = b;
-    int neg = 0;
-    if (p < e && (*p == '-' || *p == '+'))
-        neg = *p++ == '-';
-    uint64_t w = 0;
-    int nsig = 0;        /* digits from the first non-zero one on */
-    long frac = 0;       /* digits after the point */
-    int ndig = 0;        /* all mantissa digits */
-    for (; p < e && is_digit(*p); p++, ndig++) {
-        if (w || *p != '0')
-            w = w * 10 + (uint64_t)(*p - '0'), nsig++;
-        if (nsig > 19)
-            return 0;
-    }
-    if (p < e && *p == '.') {
-        for (p++; p < e && is_digit(*p); p++, ndig++, frac++) {
-            if (w || *p != '0')
-                w = w * 10 + (uint64_t)(*p - '0'), nsig++;
-            if (nsig > 19)
-                return 0;
-        }
-    }
-    if (ndig == 0)
-        return 0;
-    long ex = 0;
-    if (p < e && (*p == 'e' || *p == 'E')) {
-        int eneg = 0;
-        p++;
-        if (p < e && (*p == '-' || *p == '+'))
-            eneg = *p++ == '-';
-        if (p == e || !is_digit(*p))
-            return 0;
-        for (; p < e && is_digit(*p); p++)
-            if (ex < 100000)
-                ex = ex * 10 + (*p - '0');
-        if (eneg)
-            ex = -ex;
-    }
-    if (p != e)
-        return 0;
-    if (w == 0) {
-        *v = neg ? -0.0 : 0.0;
-        return 1;
-    }
-    long q = ex - frac;
-#if defined(FLT_EVAL_METHOD) && FLT_EVAL_METHOD == 0
-    if (q >= -22 && q <= 22 && w <= (uint64_t)1 << 53) {
-        double d = (double)w;
-        d = q < 0 ? d / p10[-q] : d * p10[q];
-        *v = neg ? -d : d;
-        return 1;
-    }
-#else
-    (void)p10;
-#endif
     if (q < POW5_MIN_Q || q > POW5_MAX_Q)
         return 0;
     uint64_t bits;
@@ -847,5 +789,14 @@ int cs_decimal_to_double(const char *b, const char *e, double *v)
         return 0;
     bits |= (uint64_t)neg << 63;
     memcpy(v, &bits, sizeof *v);
+    return 1;
+}
+
+int cs_decimal_to_double(const char *b, const char *e, double *v)
+{
+    double x;
+    if (io_decimal_scan(b, e, &x) != e)
+        return 0;
+    *v = x;
     return 1;
 }

@@ -47,17 +47,23 @@
  * ----------------
  * The file is read in 4 MiB chunks into one buffer; lines are found with memchr and handled in
  * place. A partial last line is moved to the front of the buffer before the next read (since a
- * line is at most 1 MiB, there is always room). Fields are found one at a time, and a field in
- * use is NUL-terminated in place and converted by num_fast(): plain decimals by the exact
- * fast parser of io_number.c (Clinger's fast path, then Eisel-Lemire), anything else by
- * strtod. Nothing is allocated per line or per field: values go straight into arrays grown
- * geometrically with realloc and shrunk to size at the end, which become the arrays of the
- * spectrum or record without a copy. Slow work (messages, decimal-comma and
- * quote handling) happens only when a field fails the fast path.
+ * line is at most 1 MiB, there is always room). Fields are taken one at a time. A field in use
+ * is first tried by num_field(): the number at its start is read by io_decimal_scan (inline,
+ * io_number_impl.h: the digits eight at a time, then Clinger's fast path or Eisel-Lemire), and
+ * when only blanks follow it up to the delimiter, that is the field - its end is found by the
+ * number's own scan, with no separate search for the delimiter. Any other field (quoted, long,
+ * not plain decimal, or not decided there) goes the general way: next_field() finds it, it is
+ * NUL-terminated in place and converted by num_fast() (the same exact parser, then strtod),
+ * and field_value() explains a refusal. Both ways accept the same fields with the same values
+ * (see num_field). Nothing is allocated per line or per field: values go straight into arrays
+ * grown geometrically with realloc and shrunk to size at the end, which become the arrays of the
+ * spectrum or record without a copy. Slow work (messages, decimal-comma and quote handling)
+ * happens only when a field fails the fast path.
  * strtod follows LC_NUMERIC: collshift keeps the "C" locale, where the decimal point is '.'.
  */
 #include <collshift/io.h>
 
+#include "io_number_impl.h"
 #include "io_text_impl.h"
 
 #include <errno.h>
@@ -212,6 +218,43 @@ static inline int num_fast(const char *b, const char *e, double *v)
         return 0;
     const char *h = b + (*b == '-' || *b == '+');
     return !(h[0] == '0' && (h[1] == 'x' || h[1] == 'X'));
+}
+
+/* The fast path of a field in use, tried before next_field: the field at *pp (of the line
+ * [*pp, le)) is a plain decimal number that io_decimal_scan decides, with only blanks between
+ * it and the delimiter or the end of the line. Then 1, with *v and *pp as next_field and
+ * num_fast would leave them; else 0 with *pp unchanged, and the general path takes the field.
+ * Why both paths agree: the field next_field would cut is [p, s) - the delimiter is never a
+ * character of a number (cs_io_text_load refuses digits, letters, '.', '+' and '-' as
+ * delimiters), so the first one after p is the one after s's blanks, and trimming stops at s -
+ * and io_decimal_scan(p, le) == s exactly when cs_decimal_to_double decides [p, s), with the
+ * same value (io_number_impl.h), which is num_fast's first step. The length limit is the
+ * general path's. */
+static inline int num_field(char d, char **pp, char *le, double *v)
+{
+    char *p = *pp, *s;
+    if (!p)
+        return 0;
+    if (d == ' ') {
+        while (p < le && is_blank(*p))
+            p++;
+        s = (char *)io_decimal_scan(p, le, v);
+        if (!s || (size_t)(s - p) > TXT_MAX_FIELD || (s < le && !is_blank(*s)))
+            return 0;
+        *pp = s < le ? s + 1 : le;
+        return 1;
+    }
+    while (p < le && *p != d && is_blank(*p))
+        p++;
+    s = (char *)io_decimal_scan(p, le, v);
+    if (!s || (size_t)(s - p) > TXT_MAX_FIELD)
+        return 0;
+    while (s < le && *s != d && is_blank(*s))
+        s++;
+    if (s < le && *s != d)
+        return 0;
+    *pp = s < le ? s + 1 : NULL;
+    return 1;
 }
 
 /* Copy [b, e) to a terminated buffer (n bytes); 0 if it does not fit. */
@@ -538,7 +581,13 @@ static int data_row(txt *c, char *lb, char *le, long line)
                             c->o->max_samples);
     if (c->n == c->cap && (rc = grow(c)))
         return rc;
-    while (next_field(c->delim, &p, le, &fb, &fe)) {
+    for (;;) {
+        if (col < c->ncols && c->role[col] && num_field(c->delim, &p, le, &v[c->role[col]])) {
+            col++;
+            continue;
+        }
+        if (!next_field(c->delim, &p, le, &fb, &fe))
+            break;
         if ((size_t)(fe - fb) > TXT_MAX_FIELD)
             return io_text_fail(c, CS_EFORMAT, line, "column %zu: field longer than %zu bytes",
                                 col + 1, TXT_MAX_FIELD);

@@ -8,8 +8,10 @@
  *
  * The property: whenever cs_decimal_to_double decides a string, strtod reads the whole string
  * to a finite double (so the loader's old strtod path would have accepted it) with the same
- * bits; strings it does not decide go to that strtod path unchanged. The file under test is
- * compiled into this program, since its function is internal to the library. */
+ * bits; strings it does not decide go to that strtod path unchanged. The loader's own scanner,
+ * io_decimal_scan (io_number_impl.h: digits eight at a time, then the same conversion), must
+ * stop exactly where the number ends and decide exactly the same strings. The file under test
+ * is compiled into this program, since its functions are internal to the library. */
 #include "../src/io_number.c"
 
 #include <collshift/io.h>
@@ -134,6 +136,76 @@ static const struct hard_case {
     {"--1", 0},
     {"+-1", 0},
     {"1e5.5", 0},
+    /* cases named for this suite: halfway and near-halfway values, 19 and 20 digits */
+    {"8.589973e9", 1},
+    {"9007199254740993e0", 1},         /* 2^53 + 1 again, with an exponent */
+    {"9.007199254740993e15", 1},
+    {"0.9007199254740993e16", 1},
+    {"90071992547409930e-1", 1},       /* > 2^53 before the exponent: Eisel-Lemire */
+    {"9007199254740994.5", 1},         /* 17 digits, w > 2^53: Eisel-Lemire */
+    {"9007199254740995.0", 1},         /* halfway between 2^53 + 2 and 2^53 + 4: ties to even */
+    {"2.2250738585072012e-308", 1},
+    {"2.225073858507201136057409796709131975934819546351645648e-308", 0}, /* long: strtod */
+    {"0.1e1", 1},
+    {"0.1000000000000000055511151231257827", 0}, /* 0.1 exactly in binary, 34 digits */
+    {"0.10000000000000000555", 0},     /* 20 significant digits */
+    {"0.1000000000000000055", 1},      /* 19 */
+    {"1000000000000000000", 1},        /* 10^18, 19 digits */
+    {"10000000000000000000", 0},       /* 10^19, 20 digits */
+    {"1000000000000000000.0", 0},      /* 20 digits written, trailing zero included */
+    {"9223372036854775807", 1},        /* 2^63 - 1: 19 digits, beyond 2^53 */
+    {"9223372036854775808", 1},        /* 2^63 */
+    {"1.844674407370955161e19", 1},    /* 19 digits, just below 2^64 */
+    {"0.000000000000000000001234567890123456789", 1}, /* 19 significant after 21 zeros */
+    {"123456789012345678.9", 1},       /* 19 digits around the point */
+    {"00000000000000000000000.00000000000000000000001", 1},
+    {"1e-22", 1},                      /* the last power of Clinger's table */
+    {"1e-23", 1},
+    {"4.35e-22", 1},
+    {"9007199254740992e22", 1},        /* 2^53 * 10^22: Clinger's largest product */
+    {"9007199254740993e22", 1},        /* w > 2^53: Eisel-Lemire */
+    {"3.4028236692093846346e38", 0},   /* 20 significant digits: strtod */
+    {"7e-324", 1},                     /* rounds to the smallest subnormal */
+    {"2e-324", 1},                     /* rounds to zero */
+    {"1e-342", -1},                    /* the table's lower end (zero) */
+    {"1e-343", 0},                     /* beyond the table: strtod (zero) */
+    {"1e308", 1},
+    {"10e307", 1},
+    {"0.1e309", 1},
+    {"1e00000000000000000000022", 1},  /* leading zeros of the exponent */
+    {"-1E-0", 1},
+    {"+.1", 1},
+    /* malformed: never decided (strtod refuses them, or reads only a prefix) */
+    {"1..2", 0},
+    {"1.e", 0},
+    {"+.", 0},
+    {"1e+-5", 0},
+    {"1ee5", 0},
+    {"e", 0},
+    {"E5", 0},
+    {"1e5e5", 0},
+    {".e", 0},
+    {"0x", 0},
+    {"0X1P-2", 0},
+    {"infinity", 0},
+    {"nan(123)", 0},
+    {"\t1", 0},
+    {"1\t", 0},
+    {"1\r", 0},
+    {"1_000", 0},
+    {"1'000", 0},
+    {"\"1\"", 0},
+    {"\xef\xbc\x91", 0},            /* U+FF11, a full-width digit one */
+    {"12345678\x80", 0},
+    {"12345678:", 0},                  /* ':' is '9' + 1 */
+    {"1234567/", 0},                   /* '/' is '0' - 1 */
+    {"0.12345678/", 0},
+    {"0.1234567:9", 0},
+    {"0.123456789012345678", 1},      /* 8 + 8 + 2 digits after the point */
+    {"0.12345678", 1},                 /* exactly eight, then the end */
+    {"-0.1234567", 1},
+    {"0.1234567890123456789", 1},      /* 19 after the point */
+    {"0.12345678901234567890", 0},     /* 20 */
 };
 
 START_TEST(test_hard_cases)
@@ -250,6 +322,171 @@ START_TEST(test_random_strings)
 }
 END_TEST
 
+/* ---------------------------------------------------------------- the loader's scanner */
+
+/* io_decimal_scan on [s, s + n) (n may run past the number into what follows it), checked
+ * against cs_decimal_to_double on the number alone: the scan ends exactly at the end of a
+ * number that cs_decimal_to_double decides, with the same bits, and nowhere else. */
+static void check_scan(const char *s, size_t n, size_t numlen)
+{
+    double a = 0.0, b = 0.0;
+    const char *end = io_decimal_scan(s, s + n, &a);
+    int dec = cs_decimal_to_double(s, s + numlen, &b);
+    if (dec) {
+        ck_assert_msg(end == s + numlen, "'%.*s' + '%.*s': scan ends at %td, expected %zu",
+                      (int)numlen, s, (int)(n - numlen), s + numlen, end ? end - s : -1, numlen);
+        ck_assert_msg(bits_of(a) == bits_of(b), "'%.*s': scan %.17g != %.17g", (int)numlen, s, a,
+                      b);
+    } else {
+        ck_assert_msg(end != s + numlen, "'%.*s': scanned, but not decided as a field",
+                      (int)numlen, s);
+    }
+    if (end) {
+        /* whatever the scan reads is a field cs_decimal_to_double decides, with the same value */
+        double c = 0.0;
+        ck_assert_msg(cs_decimal_to_double(s, end, &c) && bits_of(c) == bits_of(a),
+                      "'%.*s': scan to %td not decided alone", (int)n, s, end - s);
+        ck_assert(end > s && end <= s + n);
+    }
+}
+
+static const struct scan_case {
+    const char *s;
+    long end; /* where io_decimal_scan stops; -1: NULL */
+} scan_cases[] = {
+    {"1.5,2", 3},
+    {"1.5 ", 3},
+    {"-0.01779508537,0.003903551624", 14},
+    {"0.003903551624\t1", 14},
+    {"131.071;1", 7},
+    {"1e5,", 3},
+    {"1E-5x", 4},
+    {"1e", -1},       /* an 'e' without exponent digits: no number here (strtod's "1" is not) */
+    {"1e,5", -1},
+    {"1e+", -1},
+    {"1e-x", -1},
+    {"1.2.3", 3},     /* a number, then more: the field "1.2.3" is refused by the end check */
+    {"1..2", 2},
+    {".5.", 2},
+    {"5.,", 2},
+    {".", -1},
+    {"-", -1},
+    {"+", -1},
+    {"-.e1", -1},
+    {"", -1},
+    {" 1", -1},       /* blanks are the loader's to trim */
+    {"x1", -1},
+    {"0x10", 1},      /* "0", then 'x': the field "0x10" is refused by the end check */
+    {"12345678901234567890,1", -1}, /* 20 digits: left to strtod */
+    {"0.12345678,", 10},
+    {"0.123456789,", 11},
+    {"0.1234567890123456,", 18},
+    {"0.12345678\"", 10},
+    {"1e400,", -1},   /* overflow: left to strtod */
+    {"-0,", 2},
+    {"1e-400,", -1},  /* beyond the table: left to strtod */
+};
+
+START_TEST(test_scan_cases)
+{
+    for (size_t i = 0; i < sizeof scan_cases / sizeof scan_cases[0]; i++) {
+        const char *s = scan_cases[i].s;
+        size_t n = strlen(s);
+        double v = 0.0;
+        const char *end = io_decimal_scan(s, s + n, &v);
+        long got = end ? (long)(end - s) : -1;
+        ck_assert_msg(got == scan_cases[i].end, "'%s': scan ends at %ld, expected %ld", s, got,
+                      scan_cases[i].end);
+        if (end) {
+            /* reference: C standard strtod on the scanned characters (common practice) */
+            char tmp[64];
+            snprintf(tmp, sizeof tmp, "%.*s", (int)got, s);
+            ck_assert_msg(bits_of(v) == bits_of(strtod(tmp, NULL)), "'%s': %.17g", tmp, v);
+        }
+    }
+    /* nothing beyond e is read: "1.25" cut after "1.2", or after "1." */
+    const char *t = "1.25";
+    double v;
+    ck_assert(io_decimal_scan(t, t + 3, &v) == t + 3 && v == 1.2);
+    ck_assert(io_decimal_scan(t, t + 2, &v) == t + 2 && v == 1.0);
+}
+END_TEST
+
+/* A random decimal string as this suite's brief asks: a sign or none, 1-25 digits (leading
+ * zeros as they come), a point anywhere or none, an exponent in -330..330 or none ('e' or 'E',
+ * with or without '+', sometimes with leading zeros). Returns its length. */
+static size_t random_decimal(gsl_rng *g, char *s, size_t cap)
+{
+    size_t len = 0;
+    double u = gsl_rng_uniform(g);
+    if (u < 0.25)
+        s[len++] = '-';
+    else if (u < 0.35)
+        s[len++] = '+';
+    int nd = 1 + (int)gsl_rng_uniform_int(g, 25);
+    int point = (int)gsl_rng_uniform_int(g, (unsigned long)nd + 2) - 1; /* -1: none */
+    for (int i = 0; i < nd; i++) {
+        if (i == point)
+            s[len++] = '.';
+        s[len++] = (char)('0' + gsl_rng_uniform_int(g, 10));
+    }
+    if (point == nd)
+        s[len++] = '.';
+    if (gsl_rng_uniform(g) < 0.75) {
+        long ex = (long)gsl_rng_uniform_int(g, 661) - 330;
+        int zeros = gsl_rng_uniform(g) < 0.1 ? (int)gsl_rng_uniform_int(g, 4) : 0;
+        len += (size_t)snprintf(s + len, cap - len, "%c%s%0*ld",
+                                gsl_rng_uniform(g) < 0.5 ? 'e' : 'E',
+                                ex >= 0 && gsl_rng_uniform(g) < 0.3 ? "+" : "",
+                                ex < 0 ? zeros + 2 : zeros + 1, ex);
+    }
+    s[len] = '\0';
+    return len;
+}
+
+/* Random decimal strings (reference: C standard strtod, common practice), each also scanned by
+ * the loader's scanner with a delimiter or other non-number character after it, and in a
+ * mutated copy (one character replaced, inserted or removed) that is often malformed. */
+START_TEST(test_random_decimals)
+{
+    static const char after[] = ",; \t\"x#\r/:Z";
+    static const char mut[] = "0123456789.eE+-, x/:";
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    ck_assert_ptr_nonnull(g);
+    gsl_rng_set(g, 20261202);
+    const long n = 250000;
+    long decided = 0;
+    char s[128], m[128];
+    for (long k = 0; k < n; k++) {
+        size_t len = random_decimal(g, s, sizeof s - 40);
+        decided += check_one(s);
+        /* followed by a character that cannot continue a number, then more text */
+        memcpy(m, s, len);
+        m[len] = after[gsl_rng_uniform_int(g, sizeof after - 1)];
+        memcpy(m + len + 1, "12345678.9", 11);
+        check_scan(m, len + 11, len);
+        check_scan(s, len, len);
+        /* mutated: replace, insert or remove one character */
+        size_t at = gsl_rng_uniform_int(g, len + 1), ml = 0;
+        unsigned op = (unsigned)gsl_rng_uniform_int(g, 3);
+        char ch = mut[gsl_rng_uniform_int(g, sizeof mut - 1)];
+        for (size_t i = 0; i <= len; i++) {
+            if (i == at && op != 2)
+                m[ml++] = ch;
+            if (i < len && !(i == at && op != 1))
+                m[ml++] = s[i];
+        }
+        m[ml] = '\0';
+        check_one(m);
+        check_scan(m, ml, ml);
+    }
+    gsl_rng_free(g);
+    /* most strings have at most 19 significant digits and an exponent in range: most must be
+     * decided without strtod (about 0.7 of them here) */
+    ck_assert_msg(decided > n / 2, "only %ld of %ld random strings decided", decided, n);
+}
+END_TEST
+
 /* ---------------------------------------------------------------- through the loader */
 
 /* The loader gives the values strtod gives (reference: C standard strtod), keeps reading an
@@ -317,6 +554,149 @@ START_TEST(test_loader_values)
 }
 END_TEST
 
+/* Random numbers in the I and Q columns of records written with each delimiter, blanks around
+ * fields and some fields quoted: the loader (whose fields in use go through io_decimal_scan, or
+ * the general path when quoted or not decided there) gives strtod's value for every one
+ * (reference: C standard strtod, common practice). Numbers that strtod reads as infinite are
+ * left out (the loader refuses them; test_loader_malformed). */
+START_TEST(test_loader_random)
+{
+    static const char delims[] = {',', ';', '\t', ' '};
+    static const char *blanks[] = {"", "", "", " ", "  ", "\t", " \t "}; /* no tab with '\t' */
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    ck_assert_ptr_nonnull(g);
+    gsl_rng_set(g, 8);
+    enum { ROWS = 4000 };
+    static char nums[ROWS][2][64];
+    size_t cap = (size_t)ROWS * 200 + 64;
+    char *text = malloc(cap);
+    ck_assert_ptr_nonnull(text);
+    for (size_t di = 0; di < sizeof delims; di++) {
+        char d = delims[di];
+        unsigned long nb = d == '\t' ? 5 : 7;
+        size_t len = (size_t)snprintf(text, cap, "time_us%ci%cq\n", d, d);
+        for (size_t r = 0; r < ROWS; r++) {
+            const char *lead = blanks[gsl_rng_uniform_int(g, nb)];
+            len += (size_t)snprintf(text + len, cap - len, "%s%zu", lead, r);
+            for (int k = 0; k < 2; k++) {
+                char *x = nums[r][k];
+                do
+                    random_decimal(g, x, 64);
+                while (!isfinite(strtod(x, NULL)));
+                const char *q = d != ' ' && gsl_rng_uniform(g) < 0.05 ? "\"" : "";
+                const char *b1 = blanks[gsl_rng_uniform_int(g, nb)];
+                const char *b2 = blanks[gsl_rng_uniform_int(g, nb)];
+                const char *b3 = k == 1 ? blanks[gsl_rng_uniform_int(g, nb)] : "";
+                len += (size_t)snprintf(text + len, cap - len, "%s%c%s%s%s%s%s", b1, d, b2, q, x,
+                                        q, b3);
+            }
+            text[len++] = '\n';
+            text[len] = '\0';
+        }
+        cs_load_options o;
+        cs_load_options_init(&o);
+        cs_loaded out;
+        cs_error err;
+        cs_loaded_init(&out);
+        cs_error_clear(&err);
+        int rc = cs_io_text_load(tu_write_text("random.csv", text), &o, &out, &err);
+        ck_assert_msg(rc == CS_OK, "delimiter '%c': load failed (%d): line %ld: %s", d, rc,
+                      err.line, err.msg);
+        ck_assert_int_eq(out.kind, CS_KIND_RECORD);
+        const cs_record *rec = out.records[0];
+        ck_assert_uint_eq(rec->n, ROWS);
+        ck_assert_int_eq(rec->is_complex, 1);
+        for (size_t r = 0; r < ROWS; r++)
+            for (int k = 0; k < 2; k++) {
+                double want = strtod(nums[r][k], NULL);
+                ck_assert_msg(bits_of(rec->data[2 * r + (size_t)k]) == bits_of(want),
+                              "delimiter '%c', line %zu: '%s' loaded as %.17g, strtod %.17g", d,
+                              r + 2, nums[r][k], rec->data[2 * r + (size_t)k], want);
+            }
+        cs_loaded_release(&out);
+    }
+    free(text);
+    gsl_rng_free(g);
+}
+END_TEST
+
+/* A malformed field in a random row and column of an otherwise good record is refused with the
+ * message, line and column the loader has always given (the messages of bad_field in
+ * io_text.c, written out here), whatever blanks surround it and whichever delimiter is used. */
+START_TEST(test_loader_malformed)
+{
+    static const struct {
+        const char *field, *fmt; /* fmt: the message, with the column number and the field */
+        int code;
+    } bad[] = {
+        {"1e", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"1e+", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"e5", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"1.2.3", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"1..2", "column %d: '%s' is not a number", CS_EFORMAT},
+        {".", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"-", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"+.e3", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"--1", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"1d5", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"0.12345678x", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"0.1234567/", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"12:5", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"1 2", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"\"1.5", "column %d: '%s' is not a number", CS_EFORMAT},
+        {"0x1A", "column %d: '%s' is hexadecimal: only decimal numbers are accepted", CS_EFORMAT},
+        {"-0X1p3", "column %d: '%s' is hexadecimal: only decimal numbers are accepted",
+         CS_EFORMAT},
+        {"nan", "column %d: '%s' is NaN (not a number)", CS_EDATA},
+        {"-inf", "column %d: '%s' is infinite", CS_EDATA},
+        {"Infinity", "column %d: '%s' is infinite", CS_EDATA},
+        {"1e999", "column %d: '%s' is too large for a double (infinite)", CS_EDATA},
+        {"-1.7976931348623159e308", "column %d: '%s' is too large for a double (infinite)",
+         CS_EDATA},
+        {"123456789012345678901234567890e300",
+         "column %d: '%s' is too large for a double (infinite)", CS_EDATA},
+    };
+    static const char delims[] = {',', ';', '\t'};
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    ck_assert_ptr_nonnull(g);
+    gsl_rng_set(g, 13);
+    char text[8192], want[256];
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        for (int rep = 0; rep < 6; rep++) {
+            char d = delims[gsl_rng_uniform_int(g, sizeof delims)];
+            size_t rows = 20, badrow = gsl_rng_uniform_int(g, rows);
+            int badcol = 2 + (int)gsl_rng_uniform_int(g, 2); /* 1-based: I or Q */
+            /* the file: a header, then one line per row; line 1 + comments before */
+            size_t len = (size_t)snprintf(text, sizeof text, "# kind = record\ntime_us%ci%cq\n",
+                                          d, d);
+            for (size_t r = 0; r < rows; r++) {
+                const char *f2 = badrow == r && badcol == 2 ? bad[i].field : "0.001953125";
+                const char *f3 = badrow == r && badcol == 3 ? bad[i].field : "-1.5e-3";
+                len += (size_t)snprintf(text + len, sizeof text - len, "%zu%c %s %c%s\n", r, d,
+                                        f2, d, f3);
+            }
+            cs_load_options o;
+            cs_load_options_init(&o);
+            cs_loaded out;
+            cs_error err;
+            cs_loaded_init(&out);
+            cs_error_clear(&err);
+            int rc = cs_io_text_load(tu_write_text("malformed.csv", text), &o, &out, &err);
+            snprintf(want, sizeof want, bad[i].fmt, badcol, bad[i].field);
+            ck_assert_msg(rc == bad[i].code, "'%s': code %d, expected %d (%s)", bad[i].field, rc,
+                          bad[i].code, err.msg);
+            ck_assert_msg(err.line == (long)badrow + 3, "'%s': line %ld, expected %zu",
+                          bad[i].field, err.line, badrow + 3);
+            ck_assert_msg(strcmp(err.msg, want) == 0, "'%s': message '%s', expected '%s'",
+                          bad[i].field, err.msg, want);
+            ck_assert_uint_eq(out.nrecords, 0);
+            cs_loaded_release(&out);
+        }
+    }
+    gsl_rng_free(g);
+}
+END_TEST
+
 static Suite *io_number_suite(void)
 {
     Suite *s = suite_create("io_number");
@@ -327,8 +707,18 @@ static Suite *io_number_suite(void)
     tcase_set_timeout(tc, 120);
     tcase_add_test(tc, test_random_strings);
     suite_add_tcase(s, tc);
+    tc = tcase_create("scan");
+    tcase_add_test(tc, test_scan_cases);
+    suite_add_tcase(s, tc);
+    tc = tcase_create("random decimals");
+    tcase_set_timeout(tc, 120);
+    tcase_add_test(tc, test_random_decimals);
+    suite_add_tcase(s, tc);
     tc = tcase_create("loader");
+    tcase_set_timeout(tc, 60);
     tcase_add_test(tc, test_loader_values);
+    tcase_add_test(tc, test_loader_random);
+    tcase_add_test(tc, test_loader_malformed);
     suite_add_tcase(s, tc);
     return s;
 }

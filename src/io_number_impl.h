@@ -1,0 +1,189 @@
+/* Private interface of io_number.c: the inline scanner of decimal numbers for the text loader. */
+/*
+ * io_decimal_scan() reads the plain decimal number at the start of some text and converts it to
+ * the double strtod would give (bit for bit; "C" locale, rounding to nearest). It is inline so
+ * that the loader's loop over fields (io_text.c) runs it without a call; the rare cases of the
+ * conversion are out of line in io_number.c (io_number_slow: the Eisel-Lemire algorithm), whose
+ * head comment describes the method. What it decides is documented at io_decimal_scan below;
+ * everything else is left to strtod by the caller.
+ *
+ * Reading the digits. The mantissa's digits are accumulated into a uint64_t w, modulo 2^64:
+ * leading zeros add nothing, and beyond 19 significant digits (where the modulus would matter)
+ * the number is left to strtod. Data files have few digits before the point and many after it
+ * ("-0.01779508537"), so the digits before the point are read one byte at a time, and those
+ * after it eight at a time while eight digits follow (SWAR, "SIMD within a register": one 64-bit
+ * load, a test that all eight bytes are digits, and their value from three multiplications -
+ * D. Lemire, "Number parsing at a gigabyte per second", Software: Practice and Experience
+ * 51(8), 1700-1727, 2021, section 7, as in his fast_float library), then one byte at a time.
+ * The eight-byte steps read only bytes inside [b, e). They are used on little-endian targets;
+ * elsewhere the byte loop does all the work (the result is the same).
+ */
+#ifndef CS_IO_NUMBER_IMPL_H
+#define CS_IO_NUMBER_IMPL_H
+
+#include "io_internal.h"
+
+#include <float.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <string.h>
+
+#if defined(__BYTE_ORDER__) && defined(__ORDER_LITTLE_ENDIAN__) && \
+    __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+#define IO_NUMBER_SWAR 1
+#else
+#define IO_NUMBER_SWAR 0
+#endif
+
+#if defined(__GNUC__)
+#define IO_NUMBER_INLINE static inline __attribute__((always_inline))
+#else
+#define IO_NUMBER_INLINE static inline
+#endif
+
+/* w * 10^q with the sign neg (w != 0, |q| < 2^21), for what the inline fast path does not
+ * decide (Eisel-Lemire, io_number.c): 1 with *v bit-identical to strtod's, or 0 when it does
+ * not decide (the result would be infinite, q is out of the table's range, or the rounding is
+ * too close to call) - then strtod decides. */
+CS_IO_INTERNAL int io_number_slow(uint64_t w, long q, int neg, double *v);
+
+/* The eight bytes at p, the first one lowest (little-endian hosts only). */
+IO_NUMBER_INLINE uint64_t io_number_load8(const char *p)
+{
+    uint64_t x;
+    memcpy(&x, p, sizeof x);
+    return x;
+}
+
+/* Every byte of x is an ASCII digit, 0x30..0x39: its high nibble is 3, and stays 3 when 6 is
+ * added (a byte above '9' carries into the high nibble; a byte >= 0xFA may also carry into the
+ * next byte, but is itself not a digit). */
+IO_NUMBER_INLINE int io_number_eight_digits(uint64_t x)
+{
+    return ((x & UINT64_C(0xF0F0F0F0F0F0F0F0)) |
+            (((x + UINT64_C(0x0606060606060606)) & UINT64_C(0xF0F0F0F0F0F0F0F0)) >> 4)) ==
+           UINT64_C(0x3333333333333333);
+}
+
+/* The value of eight ASCII digits, the first one in the lowest byte: each byte less '0', then
+ * pairs (10 a + b in every 16-bit lane), then groups of four and the whole by two multiplications
+ * with constants that place 100 a + b and 10^6 a + 10^4 b ... in the top 32 bits. */
+IO_NUMBER_INLINE uint64_t io_number_eight_value(uint64_t x)
+{
+    const uint64_t mask = UINT64_C(0x000000FF000000FF);
+    const uint64_t mul1 = UINT64_C(0x000F424000000064); /* 100 + (1000000 << 32) */
+    const uint64_t mul2 = UINT64_C(0x0000271000000001); /* 1 + (10000 << 32) */
+    x -= UINT64_C(0x3030303030303030);
+    x = x * 10 + (x >> 8);
+    return (((x & mask) * mul1) + (((x >> 16) & mask) * mul2)) >> 32;
+}
+
+/*
+ * The longest plain decimal number at b, not beyond e: an optional '-' or '+', digits with at
+ * most one '.' (at least one digit), an optional exponent 'e' or 'E' with an optional sign and at
+ * least one digit. Returns its end, with *v set to the double strtod gives for exactly those
+ * characters, when it decides the number: at most 19 significant digits, and a finite result
+ * (underflow to zero or a subnormal included). Returns NULL, with *v untouched, when there is no
+ * such number at b, when an 'e' is not followed by a well-formed exponent, or when it does not
+ * decide (more digits, overflow, an exponent far out of range, a rounding too close to call).
+ * Blanks, hexadecimal, "inf" and "nan" are never numbers here. Only [b, e) is read. The scan
+ * stops at the first character that cannot continue the number, and what it decides there
+ * depends on nothing after that character; so with [b, f) a field and the character at f (if
+ * f < e) a blank or a delimiter - never a digit, '.', 'e' or 'E' - io_decimal_scan(b, e, v)
+ * returns f exactly when cs_decimal_to_double(b, f, v) decides the field, with the same value
+ * (cs_decimal_to_double is this scan with e = f and the end checked).
+ */
+IO_NUMBER_INLINE const char *io_decimal_scan(const char *b, const char *e, double *v)
+{
+    static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                 1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                                 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+    const char *p = b;
+    if (p == e)
+        return NULL;
+    int neg = *p == '-';
+    p += neg | (*p == '+');
+    uint64_t w = 0;
+    const char *ds = p; /* the mantissa's first character */
+    for (; p < e; p++) {
+        unsigned d = (unsigned)(unsigned char)*p - '0';
+        if (d > 9)
+            break;
+        w = w * 10 + d;
+    }
+    long frac = 0; /* digits after the point */
+    int point = 0;
+    if (p < e && *p == '.') {
+        const char *fs = ++p;
+        point = 1;
+#if IO_NUMBER_SWAR
+        while (e - p >= 8) {
+            uint64_t c = io_number_load8(p);
+            if (!io_number_eight_digits(c))
+                break;
+            w = w * 100000000u + io_number_eight_value(c);
+            p += 8;
+        }
+#endif
+        for (; p < e; p++) {
+            unsigned d = (unsigned)(unsigned char)*p - '0';
+            if (d > 9)
+                break;
+            w = w * 10 + d;
+        }
+        frac = (long)(p - fs);
+    }
+    long ndig = (long)(p - ds) - point; /* every mantissa digit */
+    if (ndig <= 0)
+        return NULL;
+    if (ndig > 19) {
+        /* w is exact when at most 19 digits follow the leading zeros (w < 10^19 < 2^64); more
+         * than 4096 digits go to strtod in any case, so that q below stays exact although only
+         * the exponent's first six digits are read */
+        long zeros = 0;
+        for (const char *s = ds; s < p && (*s == '0' || *s == '.'); s++)
+            zeros += *s == '0';
+        if (ndig - zeros > 19 || ndig > 4096)
+            return NULL;
+    }
+    long ex = 0;
+    if (p < e && (*p | 0x20) == 'e') {
+        int eneg = 0;
+        p++;
+        if (p < e && (*p == '-' || *p == '+'))
+            eneg = *p++ == '-';
+        if (p == e || (unsigned)(unsigned char)*p - '0' > 9)
+            return NULL;
+        for (; p < e; p++) {
+            unsigned d = (unsigned)(unsigned char)*p - '0';
+            if (d > 9)
+                break;
+            if (ex < 100000)
+                ex = ex * 10 + (long)d;
+        }
+        if (eneg)
+            ex = -ex;
+    }
+    if (w == 0) {
+        *v = neg ? -0.0 : 0.0;
+        return p;
+    }
+    long q = ex - frac; /* |ex| < 10^6, frac <= 4096 */
+#if defined(FLT_EVAL_METHOD) && FLT_EVAL_METHOD == 0
+    /* Clinger's fast path (W. D. Clinger, "How to read floating point numbers accurately",
+     * PLDI 1990): w and 10^|q| are exact doubles, so one correctly rounded operation gives the
+     * correctly rounded result. It needs no extended intermediate precision (FLT_EVAL_METHOD 0);
+     * elsewhere io_number_slow decides these numbers too. */
+    if ((unsigned long)(q + 22) <= 44 && w <= (uint64_t)1 << 53) {
+        double d = (double)(int64_t)w;
+        d = q < 0 ? d / p10[-q] : d * p10[q];
+        *v = neg ? -d : d;
+        return p;
+    }
+#else
+    (void)p10;
+#endif
+    return io_number_slow(w, q, neg, v) ? p : NULL;
+}
+
+#endif /* CS_IO_NUMBER_IMPL_H */
