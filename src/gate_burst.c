@@ -89,6 +89,7 @@
 static void box(const double *y, size_t n, size_t h, double *out)
 {
     const size_t resync = 2 * h + 1 > 1024 ? 2 * h + 1 : 1024;
+    const double width = (double)(2 * h + 1);
     for (size_t j0 = 0; j0 < n; j0 += resync) {
         const size_t jend = j0 + resync < n ? j0 + resync : n;
         size_t lo = j0 >= h ? j0 - h : 0, hi = j0 + h + 1 < n ? j0 + h + 1 : n;   /* sum of [lo, hi) */
@@ -96,16 +97,36 @@ static void box(const double *y, size_t n, size_t h, double *out)
         for (size_t k = lo; k < hi; k++)
             s += y[k];
         out[j0] = s / (double)(hi - lo);
-        for (size_t j = j0 + 1; j < jend; j++) {
+        /* the samples whose window lies inside the record, [a, b), take the same steps as the
+           others without their tests: both ends move by one and the width is 2h + 1 */
+        size_t j = j0 + 1, a = h + 1 > j ? h + 1 : j, b = n > h ? n - h : 0;
+        if (b > jend)
+            b = jend;
+        for (; j < jend && j < a; j++) {
             if (j + h < n)          /* the window's new right end */
                 s += y[hi++];
             if (j > h)              /* its left end moves */
                 s -= y[lo++];
             out[j] = s / (double)(hi - lo);
         }
+        if (j < b) {
+            for (; j < b; j++) {
+                s += y[j + h];
+                s -= y[j - h - 1];
+                out[j] = s / width;
+            }
+            hi = j + h;
+            lo = j - h - 1;
+        }
+        for (; j < jend; j++) {
+            if (j + h < n)
+                s += y[hi++];
+            if (j > h)
+                s -= y[lo++];
+            out[j] = s / (double)(hi - lo);
+        }
     }
 }
-
 /* Half-width h of the box (width 2h + 1) for sigma in samples; 0 means no smoothing. */
 static size_t box_half(double sigma, size_t n)
 {
@@ -162,6 +183,14 @@ double cs_envelope_smooth(const double *y, size_t n, double sigma_samples, doubl
     double *tmp = malloc(n * sizeof(double));
     if (!tmp)
         return -1.0;
+    if (out != y) {   /* the three passes through out and tmp, no copy */
+        box(y, n, h, out);
+        box(out, n, h, tmp);
+        box(tmp, n, h, out);
+        free(tmp);
+        double b = (double)(2 * h + 1);
+        return sqrt((b * b - 1.0) / 4.0);
+    }
     box(y, n, h, tmp);
     double *tmp2 = out == y ? malloc(n * sizeof(double)) : out;
     if (!tmp2) {
@@ -282,14 +311,15 @@ static void robust_stats(const double *y, size_t first, size_t count, double *tm
     *sig = 1.4826 * median_inplace(tmp, count);
 }
 
-/* Standard deviation the smoothing (half-width h) leaves of the noise in the raw intensity
- * y[first .. first + count): sqrt(var * tau * sum h_k^2), with var the sample variance and tau
+/* The standard deviation the smoothing (half-width h) leaves of the noise in the raw intensity
+ * y[first .. first + count) is sqrt(var * tau * sum h_k^2): this returns var * tau (0 when the
+ * region is constant), with var the sample variance and tau
  * the integrated autocorrelation sum_{|m| <= 16} rho(m), but at least tau_min: 1 for complex
  * white noise, 2 for the analytic signal of real white noise, whose intensity is correlated at
  * odd lags m with rho(m) = 4/(pi m)^2, and 1 + 2 sum_{odd m} 4/(pi m)^2 = 2. The estimate of tau
  * from a short quiet region is noisy, so it can only raise the white-noise value. */
-static double smoothed_noise_sigma(const double *y, size_t first, size_t count, size_t h,
-                                   double tau_min, double *tau_out)
+static double raw_noise_var_tau(const double *y, size_t first, size_t count, double tau_min,
+                                double *tau_out)
 {
     const double *x = y + first;
     double mean = 0.0;
@@ -313,17 +343,19 @@ static double smoothed_noise_sigma(const double *y, size_t first, size_t count, 
     if (tau < tau_min)
         tau = tau_min;
     *tau_out = tau;
-    return sqrt(c0 / (double)(count - 1) * tau * kernel_sumsq(h));
+    return c0 / (double)(count - 1) * tau;
 }
 
-/* Noise floor of a smoothing s (half-width h) of the intensity y over the quiet region: the
- * median of s, and the larger of 1.4826 MAD(s) and the model estimate above. The MAD alone
- * underestimates when the quiet region holds few independent smoothing widths. */
-static void floor_stats(const double *y, const double *s, size_t first, size_t count, size_t h,
-                        int from_real, double *tmp, double *med, double *sig, double *tau)
+/* Noise floor of a smoothing s (half-width h) of the intensity over the quiet region: the
+ * median of s, and the larger of 1.4826 MAD(s) and the model estimate above, whose var x tau
+ * part (raw_noise_var_tau of the raw intensity over the same region: the same for every
+ * smoothing) is var_tau. The MAD alone underestimates when the quiet region holds few
+ * independent smoothing widths. */
+static void floor_stats(double var_tau, const double *s, size_t first, size_t count, size_t h, double *tmp,
+                        double *med, double *sig)
 {
     robust_stats(s, first, count, tmp, med, sig);
-    double model = smoothed_noise_sigma(y, first, count, h, from_real ? 2.0 : 1.0, tau);
+    double model = var_tau > 0 ? sqrt(var_tau * kernel_sumsq(h)) : 0.0;
     if (model > *sig)
         *sig = model;
 }
@@ -382,8 +414,8 @@ static int envelope_floor(cs_envelope *e, const cs_envelope_params *p, cs_error 
         if (s0 < s1)
             first = 0;
     }
-    floor_stats(e->intensity, e->smooth, first, count, h, e->from_real, tmp, &med, &sig,
-                &e->noise_tau);
+    double var_tau = raw_noise_var_tau(e->intensity, first, count, e->from_real ? 2.0 : 1.0, &e->noise_tau);
+    floor_stats(var_tau, e->smooth, first, count, h, tmp, &med, &sig);
     free(tmp);
     double s = 0.0;
     for (size_t j = 0; j < count; j++)
@@ -604,7 +636,9 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
             free(tmp);
             return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
         }
-        double want = p->smooth_ratio * fwhm;
+        double want = p->smooth_ratio * fwhm, tau_unused;
+        double var_tau = raw_noise_var_tau(env->intensity, env->quiet_first, env->quiet_count,
+                                           env->from_real ? 2.0 : 1.0, &tau_unused);
         for (int it = 0; it < 4; it++) {
             double real = cs_envelope_smooth(env->intensity, n, want, s2);
             if (real < 0) {
@@ -612,9 +646,7 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
                 free(tmp);
                 return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
             }
-            double tau_unused;
-            floor_stats(env->intensity, s2, env->quiet_first, env->quiet_count,
-                        box_half(want, n), env->from_real, tmp, &fl, &sg, &tau_unused);
+            floor_stats(var_tau, s2, env->quiet_first, env->quiet_count, box_half(want, n), tmp, &fl, &sg);
             /* search near the pilot's burst only */
             double lo = sh.rise - fwhm_meas, hi = sh.fall + fwhm_meas + 1;
             size_t a = lo > 0 ? (size_t)lo : 0, b = hi < (double)n ? (size_t)hi : n;
