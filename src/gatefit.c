@@ -255,17 +255,12 @@ static double select_kth(double *d, size_t n, size_t k)
  * (sign, exponent and 4 bits of the mantissa) finds the bucket that holds rank k; the values of
  * that bucket, a small fraction of d, are moved to the front and select_kth finishes there. The
  * value is the same as select_kth on the whole array, for a few operations per element instead
- * of a partition's dozens. counts: 65536 scratch values. */
-static double select_kth_nonneg(double *d, size_t n, size_t k, uint32_t *counts)
+ * of a partition's dozens. counts: how many of d fall in each bucket (the caller counts them as it
+ * fills d). */
+static double select_kth_nonneg(double *d, size_t n, size_t k, const uint32_t *counts)
 {
     if (n > UINT32_MAX)
         return select_kth(d, n, k);
-    memset(counts, 0, 65536 * sizeof *counts);
-    for (size_t i = 0; i < n; i++) {
-        uint64_t b;
-        memcpy(&b, &d[i], sizeof b);
-        counts[b >> 48]++;
-    }
     size_t below = 0, bucket = 0;
     while (below + counts[bucket] <= k)
         below += counts[bucket++];
@@ -291,10 +286,15 @@ static double gate_noise(const double *x, size_t m, int cplx)
         free(counts);
         return NAN;
     }
+    memset(counts, 0, 65536 * sizeof *counts);
     for (int part = 0; part < (cplx ? 2 : 1); part++)
         for (size_t j = 0; j + 1 < m; j++) {
             size_t a = cplx ? 2 * j + (size_t)part : j, b = cplx ? 2 * (j + 1) + (size_t)part : j + 1;
-            d[nd++] = fabs(x[b] - x[a]);
+            double v = fabs(x[b] - x[a]);
+            uint64_t bits;
+            memcpy(&bits, &v, sizeof bits);
+            counts[bits >> 48]++;
+            d[nd++] = v;
         }
     double med = nd > 0 ? select_kth_nonneg(d, nd, nd / 2, counts) : 0.0;
     free(counts);

@@ -94,8 +94,13 @@ static void hankel_corr(hankel *h, const cplx *v, size_t lv, cplx *out, size_t l
     for (size_t t = 1; t < P; t++)
         b[t] = (P - t < lv) ? v[P - t] : 0;
     gsl_fft_complex_forward((double *)b, 1, P, h->wt, h->ws);
-    for (size_t k = 0; k < P; k++)
-        b[k] *= h->yhat[k];
+    double *bd = (double *)b;
+    const double *yd = (const double *)h->yhat;
+    for (size_t k = 0; k < P; k++) {   /* b[k] *= yhat[k], written out (the same bits) */
+        double br = bd[2 * k], bi = bd[2 * k + 1], yr = yd[2 * k], yi = yd[2 * k + 1];
+        bd[2 * k] = br * yr - bi * yi;
+        bd[2 * k + 1] = br * yi + bi * yr;
+    }
     gsl_fft_complex_inverse((double *)b, 1, P, h->wt, h->ws);
     memcpy(out, b, lo * sizeof *out);
 }
