@@ -32,13 +32,16 @@
  * |f|^2 so that it is the test over all samples.
  *
  * Solver: gsl_multifit_nlinear_trust with the Levenberg-Marquardt subproblem (trs_lm), More's
- * scaling and the Cholesky linear solver: the LM system J^T J + mu D^T D (4 or 9 columns) from
- * one pass over J. The QR solver, which works on J itself, cost two thirds of the iterations'
- * instructions once the model became cheap (a pivoted QR and a copy of the thousands x 4
- * Jacobian per iteration); J is well conditioned in the scaled variables u (order one,
- * amplitude and phase referred to the centroid), and the fitted values on the 16-record test
- * campaign agreed with the QR solver's to 1e-12 of their errors. Undetermined directions are
- * still found by the covariance's pivoted QR (below). A point where the model is not finite (e^{u1}
+ * scaling and, for one component, the Cholesky linear solver: the LM system J^T J + mu D^T D
+ * (4 or 5 columns) from one pass over J. The QR solver, which works on J itself, cost two
+ * thirds of the iterations' instructions once the model became cheap (a pivoted QR and a copy
+ * of the thousands x 4 Jacobian per iteration); one component's J is well conditioned in the
+ * scaled variables u (order one, amplitude and phase referred to the centroid), and the fitted
+ * values on the 16-record test campaign agreed with the QR solver's to 1e-12 of their errors.
+ * Sums of components keep the QR solver (accurate when J is ill-conditioned): they can be
+ * nearly degenerate (two decays for one line), and there the Cholesky solver's path ended at a
+ * different point with a singular covariance. Undetermined directions are found by the
+ * covariance's pivoted QR (below). A point where the model is not finite (e^{u1}
  * overflowing) gets huge residuals, so the trust region rejects it. Convergence: an accepted
  * step with |du_j| <= xtol (1 + |u_j|) for every j; or GSL's gradient test (gtol). Near the
  * minimum of a noisy gate the damped steps shrink only linearly (by ~30 per iteration in the
@@ -307,7 +310,10 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
     gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
     fp.trs = gsl_multifit_nlinear_trs_lm;
     fp.scale = gsl_multifit_nlinear_scale_more;
-    fp.solver = gsl_multifit_nlinear_solver_cholesky;
+    /* one component: Cholesky (its J is well conditioned in u); sums of components: QR (they
+       can be nearly degenerate, e.g. two decays for one line, where the normal equations
+       square the condition number) */
+    fp.solver = F->P.ncomp == 1 ? gsl_multifit_nlinear_solver_cholesky : gsl_multifit_nlinear_solver_qr;
     gsl_multifit_nlinear_workspace *gw =
         gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, F->nres, F->np);
     gsl_matrix *Jg = gsl_matrix_alloc(F->nres, F->np), *Cg = gsl_matrix_alloc(F->np, F->np);
