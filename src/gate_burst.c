@@ -83,27 +83,61 @@
 
 /* ---------------------------------------------------------------- smoothing */
 
+/* The moving average's resynchronisation interval (see box). */
+static size_t box_resync(size_t h)
+{
+    return 2 * h + 1 > 1024 ? 2 * h + 1 : 1024;
+}
+
+/* The samples [j0, j0 + resync) of box(): what box computes there depends only on y (so a block
+ * can be computed alone, with the same bits). */
+static void box_block(const double *y, size_t n, size_t h, double *out, size_t j0)
+{
+    const size_t resync = box_resync(h);
+    const double width = (double)(2 * h + 1);
+    const size_t jend = j0 + resync < n ? j0 + resync : n;
+    size_t lo = j0 >= h ? j0 - h : 0, hi = j0 + h + 1 < n ? j0 + h + 1 : n;   /* sum of [lo, hi) */
+    double s = 0.0;
+    for (size_t k = lo; k < hi; k++)
+        s += y[k];
+    out[j0] = s / (double)(hi - lo);
+    /* the samples whose window lies inside the record, [a, b), take the same steps as the
+       others without their tests: both ends move by one and the width is 2h + 1 */
+    size_t j = j0 + 1, a = h + 1 > j ? h + 1 : j, b = n > h ? n - h : 0;
+    if (b > jend)
+        b = jend;
+    for (; j < jend && j < a; j++) {
+        if (j + h < n)          /* the window's new right end */
+            s += y[hi++];
+        if (j > h)              /* its left end moves */
+            s -= y[lo++];
+        out[j] = s / (double)(hi - lo);
+    }
+    if (j < b) {
+        for (; j < b; j++) {
+            s += y[j + h];
+            s -= y[j - h - 1];
+            out[j] = s / width;
+        }
+        hi = j + h;
+        lo = j - h - 1;
+    }
+    for (; j < jend; j++) {
+        if (j + h < n)
+            s += y[hi++];
+        if (j > h)
+            s -= y[lo++];
+        out[j] = s / (double)(hi - lo);
+    }
+}
+
 /* One centred moving average of odd width b = 2h + 1 from y into out (distinct arrays). The
  * running sum is formed afresh every `resync` samples (against the drift of rounding); in
  * between the window moves by at most one sample at each end. */
 static void box(const double *y, size_t n, size_t h, double *out)
 {
-    const size_t resync = 2 * h + 1 > 1024 ? 2 * h + 1 : 1024;
-    for (size_t j0 = 0; j0 < n; j0 += resync) {
-        const size_t jend = j0 + resync < n ? j0 + resync : n;
-        size_t lo = j0 >= h ? j0 - h : 0, hi = j0 + h + 1 < n ? j0 + h + 1 : n;   /* sum of [lo, hi) */
-        double s = 0.0;
-        for (size_t k = lo; k < hi; k++)
-            s += y[k];
-        out[j0] = s / (double)(hi - lo);
-        for (size_t j = j0 + 1; j < jend; j++) {
-            if (j + h < n)          /* the window's new right end */
-                s += y[hi++];
-            if (j > h)              /* its left end moves */
-                s -= y[lo++];
-            out[j] = s / (double)(hi - lo);
-        }
-    }
+    for (size_t j0 = 0; j0 < n; j0 += box_resync(h))
+        box_block(y, n, h, out, j0);
 }
 
 /* Half-width h of the box (width 2h + 1) for sigma in samples; 0 means no smoothing. */
@@ -162,6 +196,14 @@ double cs_envelope_smooth(const double *y, size_t n, double sigma_samples, doubl
     double *tmp = malloc(n * sizeof(double));
     if (!tmp)
         return -1.0;
+    if (out != y) {   /* the three passes through out and tmp, no copy */
+        box(y, n, h, out);
+        box(out, n, h, tmp);
+        box(tmp, n, h, out);
+        free(tmp);
+        double b = (double)(2 * h + 1);
+        return sqrt((b * b - 1.0) / 4.0);
+    }
     box(y, n, h, tmp);
     double *tmp2 = out == y ? malloc(n * sizeof(double)) : out;
     if (!tmp2) {
@@ -176,6 +218,88 @@ double cs_envelope_smooth(const double *y, size_t n, double sigma_samples, doubl
     free(tmp);
     double b = (double)(2 * h + 1);
     return sqrt((b * b - 1.0) / 4.0);
+}
+
+/* The same smoothing as cs_envelope_smooth (the same bits), computed by blocks of box_resync(h)
+ * samples only where it is read: burst detection refines its smoothing up to four times but
+ * reads each one only over the quiet region, around the burst and out to its edges. Block k of
+ * a pass reads blocks k - 1 .. k + 1 of the pass before (h < box_resync(h)). */
+typedef struct lazy_smooth {
+    const double *y;
+    size_t n, h, R, nblk;
+    double *pass[3];           /* the three passes' outputs; pass[2] is the smoothing */
+    unsigned char *done[3];    /* blocks computed, per pass */
+} lazy_smooth;
+
+static void lazy_free(lazy_smooth *lz)
+{
+    for (int p = 0; p < 3; p++) {
+        free(lz->pass[p]);
+        free(lz->done[p]);
+    }
+    memset(lz, 0, sizeof *lz);
+}
+
+/* Allocate for y (n samples); CS_OK or CS_ENOMEM. */
+static int lazy_alloc(lazy_smooth *lz, const double *y, size_t n)
+{
+    memset(lz, 0, sizeof *lz);
+    lz->y = y;
+    lz->n = n;
+    for (int p = 0; p < 3; p++) {
+        lz->pass[p] = malloc(n * sizeof(double));
+        lz->done[p] = malloc(n / 1024 + 1);
+        if (!lz->pass[p] || !lz->done[p]) {
+            lazy_free(lz);
+            return CS_ENOMEM;
+        }
+    }
+    return CS_OK;
+}
+
+/* Start the smoothing with sigma samples; returns the realised sigma as cs_envelope_smooth. */
+static double lazy_start(lazy_smooth *lz, double sigma)
+{
+    lz->h = box_half(sigma, lz->n);
+    lz->R = box_resync(lz->h);
+    lz->nblk = (lz->n + lz->R - 1) / lz->R;
+    for (int p = 0; p < 3; p++)
+        memset(lz->done[p], 0, lz->n / 1024 + 1);
+    if (lz->h == 0) {   /* no smoothing: the samples themselves */
+        memcpy(lz->pass[2], lz->y, lz->n * sizeof(double));
+        memset(lz->done[2], 1, lz->nblk);
+        return 0.0;
+    }
+    double b = (double)(2 * lz->h + 1);
+    return sqrt((b * b - 1.0) / 4.0);
+}
+
+static void lazy_block(lazy_smooth *lz, int p, size_t k)
+{
+    if (lz->done[p][k])
+        return;
+    if (p > 0)
+        for (size_t q = k > 0 ? k - 1 : 0; q <= k + 1 && q < lz->nblk; q++)
+            lazy_block(lz, p - 1, q);
+    box_block(p > 0 ? lz->pass[p - 1] : lz->y, lz->n, lz->h, lz->pass[p], k * lz->R);
+    lz->done[p][k] = 1;
+}
+
+/* Make the smoothing valid over [a, b) (clipped to the record). */
+static void lazy_range(lazy_smooth *lz, size_t a, size_t b)
+{
+    if (!lz)
+        return;
+    if (b > lz->n)
+        b = lz->n;
+    for (size_t k = a / lz->R; a < b && k <= (b - 1) / lz->R; k++)
+        lazy_block(lz, 2, k);
+}
+
+static inline void lazy_need(lazy_smooth *lz, size_t j)
+{
+    if (lz && j < lz->n && !lz->done[2][j / lz->R])
+        lazy_block(lz, 2, j / lz->R);
 }
 
 /* ---------------------------------------------------------------- analytic signal */
@@ -282,14 +406,15 @@ static void robust_stats(const double *y, size_t first, size_t count, double *tm
     *sig = 1.4826 * median_inplace(tmp, count);
 }
 
-/* Standard deviation the smoothing (half-width h) leaves of the noise in the raw intensity
- * y[first .. first + count): sqrt(var * tau * sum h_k^2), with var the sample variance and tau
+/* The standard deviation the smoothing (half-width h) leaves of the noise in the raw intensity
+ * y[first .. first + count) is sqrt(var * tau * sum h_k^2): this returns var * tau (0 when the
+ * region is constant), with var the sample variance and tau
  * the integrated autocorrelation sum_{|m| <= 16} rho(m), but at least tau_min: 1 for complex
  * white noise, 2 for the analytic signal of real white noise, whose intensity is correlated at
  * odd lags m with rho(m) = 4/(pi m)^2, and 1 + 2 sum_{odd m} 4/(pi m)^2 = 2. The estimate of tau
  * from a short quiet region is noisy, so it can only raise the white-noise value. */
-static double smoothed_noise_sigma(const double *y, size_t first, size_t count, size_t h,
-                                   double tau_min, double *tau_out)
+static double raw_noise_var_tau(const double *y, size_t first, size_t count, double tau_min,
+                                double *tau_out)
 {
     const double *x = y + first;
     double mean = 0.0;
@@ -313,17 +438,19 @@ static double smoothed_noise_sigma(const double *y, size_t first, size_t count, 
     if (tau < tau_min)
         tau = tau_min;
     *tau_out = tau;
-    return sqrt(c0 / (double)(count - 1) * tau * kernel_sumsq(h));
+    return c0 / (double)(count - 1) * tau;
 }
 
-/* Noise floor of a smoothing s (half-width h) of the intensity y over the quiet region: the
- * median of s, and the larger of 1.4826 MAD(s) and the model estimate above. The MAD alone
- * underestimates when the quiet region holds few independent smoothing widths. */
-static void floor_stats(const double *y, const double *s, size_t first, size_t count, size_t h,
-                        int from_real, double *tmp, double *med, double *sig, double *tau)
+/* Noise floor of a smoothing s (half-width h) of the intensity over the quiet region: the
+ * median of s, and the larger of 1.4826 MAD(s) and the model estimate above, whose var x tau
+ * part (raw_noise_var_tau of the raw intensity over the same region: the same for every
+ * smoothing) is var_tau. The MAD alone underestimates when the quiet region holds few
+ * independent smoothing widths. */
+static void floor_stats(double var_tau, const double *s, size_t first, size_t count, size_t h, double *tmp,
+                        double *med, double *sig)
 {
     robust_stats(s, first, count, tmp, med, sig);
-    double model = smoothed_noise_sigma(y, first, count, h, from_real ? 2.0 : 1.0, tau);
+    double model = var_tau > 0 ? sqrt(var_tau * kernel_sumsq(h)) : 0.0;
     if (model > *sig)
         *sig = model;
 }
@@ -382,8 +509,8 @@ static int envelope_floor(cs_envelope *e, const cs_envelope_params *p, cs_error 
         if (s0 < s1)
             first = 0;
     }
-    floor_stats(e->intensity, e->smooth, first, count, h, e->from_real, tmp, &med, &sig,
-                &e->noise_tau);
+    double var_tau = raw_noise_var_tau(e->intensity, first, count, e->from_real ? 2.0 : 1.0, &e->noise_tau);
+    floor_stats(var_tau, e->smooth, first, count, h, tmp, &med, &sig);
     free(tmp);
     double s = 0.0;
     for (size_t j = 0; j < count; j++)
@@ -513,17 +640,23 @@ static size_t argmax(const double *y, size_t a, size_t b)
 }
 
 /* Fractional index where y crosses `level` going outward from the peak ip (y[ip] >= level):
- * dir = -1 backwards, +1 forwards. Returns NaN when y never falls below level. */
-static double crossing(const double *y, size_t n, size_t ip, double level, int dir)
+ * dir = -1 backwards, +1 forwards. Returns NaN when y never falls below level. lz: y's lazy
+ * smoothing (NULL when y is complete). */
+static double crossing(const double *y, size_t n, size_t ip, double level, int dir, lazy_smooth *lz)
 {
+    lazy_need(lz, ip);
     if (dir < 0) {
-        for (size_t j = ip; j > 0; j--)
+        for (size_t j = ip; j > 0; j--) {
+            lazy_need(lz, j - 1);
             if (y[j - 1] < level)   /* between j-1 (below) and j (at or above) */
                 return (double)(j - 1) + (level - y[j - 1]) / (y[j] - y[j - 1]);
+        }
     } else {
-        for (size_t j = ip; j + 1 < n; j++)
+        for (size_t j = ip; j + 1 < n; j++) {
+            lazy_need(lz, j + 1);
             if (y[j + 1] < level)
                 return (double)j + (y[j] - level) / (y[j] - y[j + 1]);
+        }
     }
     return NAN;
 }
@@ -536,8 +669,10 @@ struct shape {
     int rise_clipped;
 };
 
-static int measure(const double *s, size_t n, size_t lo, size_t hi, double fl, struct shape *sh)
+static int measure(const double *s, size_t n, size_t lo, size_t hi, double fl, struct shape *sh,
+                   lazy_smooth *lz)
 {
+    lazy_range(lz, lo > 0 ? lo - 1 : 0, hi + 1);
     size_t ip = argmax(s, lo, hi);
     double dp = 0.0, peak = s[ip];
     if (ip > 0 && ip + 1 < n) {
@@ -554,8 +689,8 @@ static int measure(const double *s, size_t n, size_t lo, size_t hi, double fl, s
     sh->ip = ip;
     sh->peak_idx = (double)ip + dp;
     sh->peak = peak;
-    sh->fall = crossing(s, n, ip, half, +1);
-    sh->rise = crossing(s, n, ip, half, -1);
+    sh->fall = crossing(s, n, ip, half, +1, lz);
+    sh->rise = crossing(s, n, ip, half, -1, lz);
     sh->rise_clipped = isnan(sh->rise);
     if (sh->rise_clipped)
         sh->rise = 0.0;
@@ -586,43 +721,44 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
         return CS_OK;
     }
     struct shape sh;
-    if (!measure(env->smooth, n, 0, n, env->floor, &sh)) {
+    if (!measure(env->smooth, n, 0, n, env->floor, &sh, NULL)) {
         burst_none(out, snr, env->floor, env->floor_sigma);
         return CS_OK;
     }
     /* 2. refined smoothing, iterated */
+    /* the refined smoothings are computed by blocks where they are read (lazy_smooth: the
+       same values as cs_envelope_smooth's); s2 is the latest, slz its state when s is s2 */
+    lazy_smooth lz;
+    memset(&lz, 0, sizeof lz);
+    lazy_smooth *slz = NULL;
     double *s2 = NULL, *tmp = NULL;
     const double *s = env->smooth;
     double fl = env->floor, sg = env->floor_sigma, sm = env->smooth_s / dt;
     double fwhm_meas = sh.fall - sh.rise;
     double fwhm = sqrt(fmax(fwhm_meas * fwhm_meas - pow(FWHM_PER_SIGMA * sm, 2), 0.25 * fwhm_meas * fwhm_meas));
     if (p->smooth_ratio > 0) {
-        s2 = malloc(n * sizeof(double));
         tmp = malloc(env->quiet_count * sizeof(double));
-        if (!s2 || !tmp) {
-            free(s2);
+        if (!tmp || lazy_alloc(&lz, env->intensity, n) != CS_OK) {
             free(tmp);
             return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
         }
-        double want = p->smooth_ratio * fwhm;
+        s2 = lz.pass[2];
+        double want = p->smooth_ratio * fwhm, tau_unused;
+        double var_tau = raw_noise_var_tau(env->intensity, env->quiet_first, env->quiet_count,
+                                           env->from_real ? 2.0 : 1.0, &tau_unused);
         for (int it = 0; it < 4; it++) {
-            double real = cs_envelope_smooth(env->intensity, n, want, s2);
-            if (real < 0) {
-                free(s2);
-                free(tmp);
-                return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
-            }
-            double tau_unused;
-            floor_stats(env->intensity, s2, env->quiet_first, env->quiet_count,
-                        box_half(want, n), env->from_real, tmp, &fl, &sg, &tau_unused);
+            double real = lazy_start(&lz, want);
+            lazy_range(&lz, env->quiet_first, env->quiet_first + env->quiet_count);
+            floor_stats(var_tau, s2, env->quiet_first, env->quiet_count, box_half(want, n), tmp, &fl, &sg);
             /* search near the pilot's burst only */
             double lo = sh.rise - fwhm_meas, hi = sh.fall + fwhm_meas + 1;
             size_t a = lo > 0 ? (size_t)lo : 0, b = hi < (double)n ? (size_t)hi : n;
             struct shape s2h;
-            if (!measure(s2, n, a, b > a ? b : n, fl, &s2h))
+            if (!measure(s2, n, a, b > a ? b : n, fl, &s2h, &lz))
                 break;
             sh = s2h;
             s = s2;
+            slz = &lz;
             sm = real;
             fwhm_meas = sh.fall - sh.rise;
             fwhm = sqrt(fmax(fwhm_meas * fwhm_meas - pow(FWHM_PER_SIGMA * sm, 2),
@@ -648,26 +784,30 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
     out->fwhm_measured_s = fwhm_meas * dt;
     out->fwhm_s = fwhm * dt;
     out->level = fl + fmax(p->edge_fraction * (sh.peak - fl), p->edge_nsigma * sg);
-    double on = crossing(s, n, sh.ip, out->level, -1);
-    double en = crossing(s, n, sh.ip, out->level, +1);
+    double on = crossing(s, n, sh.ip, out->level, -1, slz);
+    double en = crossing(s, n, sh.ip, out->level, +1, slz);
     out->onset_clipped = isnan(on);
     out->end_clipped = isnan(en);
     out->onset_s = env->t0_s + (isnan(on) ? 0.0 : on) * dt;
     out->end_s = env->t0_s + (isnan(en) ? (double)(n - 1) : en) * dt;
     /* fade on the heavier smoothing */
     const double *sf = s;
+    lazy_smooth *flz = slz;
     double ffl = fl, fsg = sg;
     if (env->smooth_s / dt > sm) {
         sf = env->smooth;
+        flz = NULL;
         ffl = env->floor;
         fsg = env->floor_sigma;
     }
-    size_t ipf = argmax(sf, sh.ip > 0 ? sh.ip - 1 : 0, sh.ip + 2 < n ? sh.ip + 2 : n);
-    double fd = crossing(sf, n, ipf, ffl + p->edge_nsigma * fsg, +1);
+    size_t fa = sh.ip > 0 ? sh.ip - 1 : 0, fb = sh.ip + 2 < n ? sh.ip + 2 : n;
+    lazy_range(flz, fa, fb);
+    size_t ipf = argmax(sf, fa, fb);
+    double fd = crossing(sf, n, ipf, ffl + p->edge_nsigma * fsg, +1, flz);
     out->fade_s = env->t0_s + (isnan(fd) ? (double)(n - 1) : fd) * dt;
     if (out->fade_s < out->end_s)
         out->fade_s = out->end_s;
-    free(s2);
+    lazy_free(&lz);
     out->tail_start_s = out->end_s;
     if (p->find_tail) {
         cs_burst_decay *d = NULL;

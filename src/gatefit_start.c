@@ -38,8 +38,10 @@
  *
  * Amplitudes: with every nonlinear parameter set, the model is linear in the real and
  * imaginary parts of the complex amplitudes; they are the linear least-squares solution
- * (gsl_multifit_linear, SVD) over the samples with window > 0 where the model is not
- * negligible (cs_gatefit_impl_active: the other samples add nothing to the normal equations). */
+ * (gsl_multifit_linear_tsvd, SVD) over the samples with window > 0 where the model is not
+ * negligible (cs_gatefit_impl_active: the other samples add nothing to the normal equations).
+ * One component of a complex record needs no SVD: its two columns (Re E, Im E) and (-Im E, Re E)
+ * are orthogonal with equal norms, so c = sum conj(E) x / sum |E|^2. */
 #include "gatefit_impl.h"
 
 #include <collshift/pencil.h>
@@ -67,6 +69,46 @@ double complex cs_gatefit_impl_basis(cs_gatefit_kind kind, double f, double rate
     double ph = 2.0 * PI_ * f * s;
     double env = kind == CS_GATEFIT_DECAY ? exp(-0.5 * rate * s) : sech_((s - tp) / rate);
     return env * cos(ph) + I * (env * sin(ph));
+}
+
+void cs_gatefit_impl_basis_init(gf_basis_it *it, cs_gatefit_kind kind, double f, double rate, double tp,
+                                double dt)
+{
+    memset(it, 0, sizeof *it);
+    it->kind = kind;
+    it->f = f;
+    it->rate = rate;
+    it->tp = tp;
+    it->dt = dt;
+    double a = 2.0 * PI_ * f * dt;
+    it->w = cos(a) + I * sin(a);
+    if (kind == CS_GATEFIT_DECAY) {
+        double g = exp(-0.5 * rate * dt);
+        it->q = g * cos(a) + I * (g * sin(a));
+    } else {
+        it->dz = dt / rate;
+        it->up = exp(it->dz);
+        it->down = exp(-it->dz);
+    }
+}
+
+void cs_gatefit_impl_basis_anchor(gf_basis_it *it, size_t j)
+{
+    double s = (double)j * it->dt, ph = 2.0 * PI_ * it->f * s;
+    double c = cos(ph), sn = sin(ph);
+    if (it->kind == CS_GATEFIT_DECAY) {
+        double env = exp(-0.5 * it->rate * s);
+        it->E = env * c + I * (env * sn);
+    } else {
+        it->z = (s - it->tp) / it->rate;
+        it->e = exp(-fabs(it->z));
+        it->ph = c + I * sn;
+        double env = 2.0 * it->e / (1.0 + it->e * it->e);
+        it->E = env * c + I * (env * sn);
+    }
+    it->j = j;
+    it->left = GF_ANCHOR - 1;
+    it->started = 1;
 }
 
 size_t cs_gatefit_impl_active(const gf_problem *P, const gf_theta *th, double margin)
@@ -103,6 +145,29 @@ int cs_gatefit_impl_amplitudes(const gf_problem *P, gf_theta *th, cs_error *err)
     /* the samples where the model is not negligible: the others do not change the solution */
     const size_t na = cs_gatefit_impl_active(P, th, 1.0);
     const size_t K = P->ncomp, nc = 2 * K, rows = P->cplx ? 2 * na : na;
+    if (P->cplx && K == 1) {
+        /* one complex amplitude: c = sum conj(E) x / sum |E|^2, the least-squares solution
+           (the design matrix's two real columns are orthogonal and of equal norm) */
+        gf_basis_it it;
+        cs_gatefit_impl_basis_init(&it, P->kind[0], th->f[0], th->rate[0], th->tp[0], P->dt);
+        double nr = 0.0, ni = 0.0, den = 0.0;
+        int finite = 1;
+        for (size_t i = 0; i < na; i++) {
+            size_t j = P->idx[i];
+            double complex E = gf_basis_next(&it, j, NULL);
+            double er = creal(E), ei = cimag(E), xr = P->x[2 * j], xi = P->x[2 * j + 1];
+            finite &= isfinite(er) && isfinite(ei);
+            nr += er * xr + ei * xi;
+            ni += er * xi - ei * xr;
+            den += er * er + ei * ei;
+        }
+        if (!finite)
+            return cs_error_set(err, CS_EDATA, NULL, -1, -1, "starting model is not finite");
+        th->c[0] = den > 0 ? nr / den + I * (ni / den) : 0.0;
+        if (!isfinite(creal(th->c[0])) || !isfinite(cimag(th->c[0])))
+            th->c[0] = 0.0;
+        return CS_OK;
+    }
     gsl_matrix *X = gsl_matrix_alloc(rows, nc);
     gsl_vector *y = gsl_vector_alloc(rows), *c = gsl_vector_alloc(nc);
     gsl_matrix *cov = gsl_matrix_alloc(nc, nc);
@@ -112,11 +177,13 @@ int cs_gatefit_impl_amplitudes(const gf_problem *P, gf_theta *th, cs_error *err)
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for the starting amplitudes");
         goto done;
     }
+    gf_basis_it it[CS_GATEFIT_MAX_COMP];
+    for (size_t k = 0; k < K; k++)
+        cs_gatefit_impl_basis_init(&it[k], P->kind[k], th->f[k], th->rate[k], th->tp[k], P->dt);
     for (size_t i = 0; i < na; i++) {
         size_t j = P->idx[i];
-        double s = (double)j * P->dt;
         for (size_t k = 0; k < K; k++) {
-            double complex E = cs_gatefit_impl_basis(P->kind[k], th->f[k], th->rate[k], th->tp[k], s);
+            double complex E = gf_basis_next(&it[k], j, NULL);
             if (!isfinite(creal(E)) || !isfinite(cimag(E))) {
                 rc = cs_error_set(err, CS_EDATA, NULL, -1, -1, "starting model is not finite");
                 goto done;
@@ -224,14 +291,17 @@ static int burst_start(double *r, size_t m, double dt, double *scratch, double *
     /* project out */
     double complex num = 0.0;
     double den = 0.0;
+    gf_basis_it it;
+    cs_gatefit_impl_basis_init(&it, CS_GATEFIT_BURST, *f, *tau, *tp, dt);
     for (size_t j = 0; j < m; j++) {
-        double complex E = cs_gatefit_impl_basis(CS_GATEFIT_BURST, *f, *tau, *tp, (double)j * dt);
+        double complex E = gf_basis_next(&it, j, NULL);
         num += conj(E) * (r[2 * j] + I * r[2 * j + 1]);
         den += creal(E) * creal(E) + cimag(E) * cimag(E);
     }
     double complex c = den > 0 ? num / den : 0.0;
+    cs_gatefit_impl_basis_init(&it, CS_GATEFIT_BURST, *f, *tau, *tp, dt);
     for (size_t j = 0; j < m; j++) {
-        double complex v = c * cs_gatefit_impl_basis(CS_GATEFIT_BURST, *f, *tau, *tp, (double)j * dt);
+        double complex v = c * gf_basis_next(&it, j, NULL);
         r[2 * j] -= creal(v);
         r[2 * j + 1] -= cimag(v);
     }
@@ -333,12 +403,14 @@ static double model_rss(const gf_problem *P, const gf_theta *th)
 {
     const size_t na = cs_gatefit_impl_active(P, th, 1.0);
     double rss = P->ss_after[na];
+    gf_basis_it it[CS_GATEFIT_MAX_COMP];
+    for (size_t k = 0; k < P->ncomp; k++)
+        cs_gatefit_impl_basis_init(&it[k], P->kind[k], th->f[k], th->rate[k], th->tp[k], P->dt);
     for (size_t i = 0; i < na; i++) {
         size_t j = P->idx[i];
-        double s = (double)j * P->dt;
         double complex M = 0.0;
         for (size_t k = 0; k < P->ncomp; k++)
-            M += th->c[k] * cs_gatefit_impl_basis(P->kind[k], th->f[k], th->rate[k], th->tp[k], s);
+            M += th->c[k] * gf_basis_next(&it[k], j, NULL);
         if (P->cplx) {
             double a = creal(M) - P->x[2 * j], b = cimag(M) - P->x[2 * j + 1];
             rss += a * a + b * b;
@@ -355,16 +427,25 @@ int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_problem *P, const cs_g
 {
     const size_t m = P->m, K = P->ncomp;
     const double dt = P->dt, T = P->T;
-    double *z = malloc(2 * m * sizeof *z), *scratch = malloc(3 * m * sizeof *scratch);
+    size_t nb = 0;
+    for (size_t k = 0; k < K; k++)
+        nb += P->kind[k] == CS_GATEFIT_BURST;
+    /* z: the complex gate, from which the bursts found are subtracted; a complex record's
+       samples themselves when there are no bursts (only read then) */
+    const int own_z = !P->cplx || nb > 0;
+    double *zbuf = own_z ? malloc(2 * m * sizeof *zbuf) : NULL;
+    const double *z = own_z ? zbuf : P->x;
+    double *scratch = nb > 0 ? malloc(3 * m * sizeof *scratch) : NULL;
     int rc = CS_OK;
-    if (!z || !scratch) {
+    if (!z || (nb > 0 && !scratch)) {
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for starting values");
         goto done;
     }
     if (P->cplx) {
-        memcpy(z, P->x, 2 * m * sizeof *z);
+        if (own_z)
+            memcpy(zbuf, P->x, 2 * m * sizeof *zbuf);
     } else {
-        rc = cs_envelope_analytic(ws, P->x, m, z, err);
+        rc = cs_envelope_analytic(ws, P->x, m, zbuf, err);
         if (rc != CS_OK)
             goto done;
     }
@@ -377,7 +458,7 @@ int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_problem *P, const cs_g
             continue;
         }
         double f, tau, tp;
-        if (burst_start(z, m, dt, scratch, &f, &tau, &tp) != CS_OK) {
+        if (burst_start(zbuf, m, dt, scratch, &f, &tau, &tp) != CS_OK) {
             rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for starting values");
             goto done;
         }
@@ -418,7 +499,7 @@ int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_problem *P, const cs_g
         rc = cs_gatefit_impl_amplitudes(P, &trial, err);
         if (rc != CS_OK)
             goto done;
-        double rss = model_rss(P, &trial);
+        double rss = ncand > 1 ? model_rss(P, &trial) : 0.0;   /* only to choose a candidate */
         if (ci == 0 || rss < best) {
             best = rss;
             *th = trial;
@@ -426,6 +507,6 @@ int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_problem *P, const cs_g
     }
 done:
     free(scratch);
-    free(z);
+    free(zbuf);
     return rc;
 }

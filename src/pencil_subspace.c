@@ -94,8 +94,13 @@ static void hankel_corr(hankel *h, const cplx *v, size_t lv, cplx *out, size_t l
     for (size_t t = 1; t < P; t++)
         b[t] = (P - t < lv) ? v[P - t] : 0;
     gsl_fft_complex_forward((double *)b, 1, P, h->wt, h->ws);
-    for (size_t k = 0; k < P; k++)
-        b[k] *= h->yhat[k];
+    double *bd = (double *)b;
+    const double *yd = (const double *)h->yhat;
+    for (size_t k = 0; k < P; k++) {   /* b[k] *= yhat[k], written out (the same bits) */
+        double br = bd[2 * k], bi = bd[2 * k + 1], yr = yd[2 * k], yi = yd[2 * k + 1];
+        bd[2 * k] = br * yr - bi * yi;
+        bd[2 * k + 1] = br * yi + bi * yr;
+    }
     gsl_fft_complex_inverse((double *)b, 1, P, h->wt, h->ws);
     memcpy(out, b, lo * sizeof *out);
 }
@@ -160,14 +165,23 @@ static double vnorm(const cplx *v, size_t n)
  * Returns the final norm. */
 static double orthogonalise(const cplx *Q, size_t n, size_t k, cplx *v)
 {
+    /* the complex products written out in real arithmetic, in the order C evaluates them
+       (ac - bd, ad + bc), which gives the same bits without the compiler's NaN recovery */
+    double *vv = (double *)v;
     for (int pass = 0; pass < 2; pass++)
         for (size_t c = 0; c < k; c++) {
-            const cplx *q = Q + c * n;
-            cplx d = 0;
-            for (size_t i = 0; i < n; i++)
-                d += conj(q[i]) * v[i];
-            for (size_t i = 0; i < n; i++)
-                v[i] -= d * q[i];
+            const double *q = (const double *)(Q + c * n);
+            double dr = 0.0, di = 0.0;
+            for (size_t i = 0; i < n; i++) {
+                double qr = q[2 * i], qi = q[2 * i + 1], vr = vv[2 * i], vi = vv[2 * i + 1];
+                dr += qr * vr - (-qi) * vi;
+                di += qr * vi + (-qi) * vr;
+            }
+            for (size_t i = 0; i < n; i++) {
+                double qr = q[2 * i], qi = q[2 * i + 1];
+                vv[2 * i] -= dr * qr - di * qi;
+                vv[2 * i + 1] -= dr * qi + di * qr;
+            }
         }
     return vnorm(v, n);
 }
@@ -331,12 +345,17 @@ int pencil_subspace(hankel *h, size_t K, const order_ctl *oc, ritz *out)
         /* new columns of T = Q^H W */
         for (size_t c = last0; c < k; c++)
             for (size_t a = 0; a < k; a++) {
-                cplx s = 0;
-                const cplx *qa = Q + a * n, *wc = W + c * n;
-                for (size_t i = 0; i < n; i++)
-                    s += conj(qa[i]) * wc[i];
-                T[a * kmax + c] = s;
-                T[c * kmax + a] = conj(s);
+                /* conj(qa) . wc in real arithmetic (the same bits, see orthogonalise) */
+                const double *qa = (const double *)(Q + a * n), *wc = (const double *)(W + c * n);
+                double sr = 0.0, si = 0.0;
+                for (size_t i = 0; i < n; i++) {
+                    double qr = qa[2 * i], qi = qa[2 * i + 1], wr = wc[2 * i], wi = wc[2 * i + 1];
+                    sr += qr * wr - (-qi) * wi;
+                    si += qr * wi + (-qi) * wr;
+                }
+                cplx sc = sr + I * si;
+                T[a * kmax + c] = sc;
+                T[c * kmax + a] = conj(sc);
             }
         if (added > 0 && k < K + 1 && k < n)
             continue;
@@ -354,14 +373,22 @@ int pencil_subspace(hankel *h, size_t K, const order_ctl *oc, ritz *out)
         double worst = 0.0, top = fmax(theta[0], DBL_MIN);
         for (size_t c = 0; c < Kk; c++) {
             const cplx *cc = C + c * k;
+            const double *Qd = (const double *)Q, *Wd = (const double *)W, *cd = (const double *)cc;
             for (size_t i = 0; i < n; i++) {
-                cplx s = 0, g = 0;
+                /* sum_j Q[j][i] cc[j] and W[j][i] cc[j] in real arithmetic (the same bits) */
+                double sr = 0.0, si = 0.0, gr = 0.0, gi = 0.0;
                 for (size_t j = 0; j < k; j++) {
-                    s += Q[j * n + i] * cc[j];
-                    g += W[j * n + i] * cc[j];
+                    double ar = Qd[2 * (j * n + i)], ai = Qd[2 * (j * n + i) + 1];
+                    double br = Wd[2 * (j * n + i)], bi = Wd[2 * (j * n + i) + 1];
+                    double cr = cd[2 * j], ci = cd[2 * j + 1];
+                    sr += ar * cr - ai * ci;
+                    si += ar * ci + ai * cr;
+                    gr += br * cr - bi * ci;
+                    gi += br * ci + bi * cr;
                 }
-                out->S[c * n + i] = s;
-                r[i] = g - theta[c] * s;
+                cplx sv = sr + I * si, gv = gr + I * gi;
+                out->S[c * n + i] = sv;
+                r[i] = gv - theta[c] * sv;
             }
             double res = vnorm(r, n);
             double th = fabs(theta[c]);

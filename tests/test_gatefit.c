@@ -219,6 +219,12 @@ static const exact_case exact_cases[] = {
      {{0, 21e6, 2 * PI_T * 0.6e6, 0, 1.5, 0.7}}},
     {"real burst, rect", "burst", "rect", 0, 2000, 4e-9, 0.0, 0.0, 0.0, 8e-6, 1,
      {{1, 30e6, 50e-9, 4.0e-6, 3.0, -0.4}}},
+    /* long walks of the solver's basis recurrences (gatefit_impl.h, GF_ANCHOR): a slow decay
+       over 40000 samples (all of them active) and a wide burst over 20000, its peak mid-gate */
+    {"slow decay, 40000 samples", "decay", "rect", 1, 40000, 1e-9, 0.0, 0.0, 0.0, 40e-6, 1,
+     {{0, 2.1e6, 2 * PI_T * 20e3, 0, 1.0, 0.9}}},
+    {"wide burst, 20000 samples", "burst", "hann", 1, 20000, 1e-9, 0.0, 0.0, 0.0, 20e-6, 1,
+     {{1, -1.3e6, 1e-6, 9.3e-6, 2.0, -2.2}}},
 };
 
 START_TEST(test_exact)
@@ -236,6 +242,12 @@ START_TEST(test_exact)
     printf("exact %-26s niter %2zu  rss %.3g  stop %s\n", e->name, r->niter, r->rss,
            cs_fit_stop_name(r->stop));
     check_exact(r, e->c, e->nc, e->lo, 1e-8);
+    /* noise-free data and the exact model: the residuals are rounding (common practice), so
+       their sum of squares is below 1e-20 of the data's over the gate (relative rms 1e-10) */
+    double ssx = 0.0;
+    for (size_t i = 0; i < (e->cplx ? 2 : 1) * r->m; i++)
+        ssx += rec->data[(e->cplx ? 2 : 1) * r->first + i] * rec->data[(e->cplx ? 2 : 1) * r->first + i];
+    ck_assert_msg(r->rss <= 1e-20 * ssx, "%s: rss %g of %g", e->name, r->rss, ssx);
     size_t np = 0;
     for (size_t k = 0; k < e->nc; k++)
         np += e->c[k].burst ? CS_GATEFIT_BURST_NPARAMS : CS_GATEFIT_DECAY_NPARAMS;
@@ -571,8 +583,8 @@ START_TEST(test_real_noisy)
 END_TEST
 
 /* A long gate that is mostly noise: a complex decay (Gamma = 2 pi x 1 MHz, amplitude e-folding
- * in 320 ns) gated over 40 us at 1 ns, so that after ~13 us the model is below e^-40 of its
- * start and only noise is left. The fit recovers the truth (4 standard errors), counts every
+ * in 320 ns) gated over 40 us at 1 ns, so that after ~6.4 us the model is below e^-20 of its
+ * start (GF_NEGLIGIBLE) and after ~13 us below e^-40: only noise is left. The fit recovers the truth (4 standard errors), counts every
  * sample (n = 2 x nused, dof = n - 4) and its noise from the residuals, sqrt(rss / dof) (common
  * practice), matches the sigma the noise was drawn with to 2 % (its standard error is
  * 1/sqrt(2 x 80000) = 0.25 %): the samples after the decay enter the residual sum although the
