@@ -563,3 +563,75 @@ int cs_gate_spectrum_shots(cs_gate_workspace *ws, cs_record *const *recs, size_t
     }
     return rc;
 }
+
+/* ---------------------------------------------------------------- averaged neighbouring bins */
+
+int cs_gate_block_variance(const cs_window *w, int periodic, size_t m, size_t nfft, size_t K, double *g,
+                           double *ginf)
+{
+    if (g)
+        *g = NAN;
+    if (ginf)
+        *ginf = NAN;
+    if (!w || !w->type || m < 1 || nfft < m || K < 1)
+        return CS_EINVAL;
+    const double N = (double)nfft;
+    if (strcmp(w->type->name, "rect") == 0) {
+        /* rho(l) = sin(pi l m / N) / (m sin(pi l / N)), the Dirichlet kernel */
+        double s = 1.0;
+        for (size_t l = 1; g && l < K && l < nfft; l++) {
+            double th = 3.14159265358979323846 * (double)l / N, r = sin(th * (double)m) / ((double)m * sin(th));
+            s += 2.0 * (1.0 - (double)l / (double)K) * r * r;
+        }
+        if (g)
+            *g = s;
+        if (ginf)
+            *ginf = N / (double)m;
+        return CS_OK;
+    }
+    double *w2 = malloc(m * sizeof *w2);
+    if (!w2)
+        return CS_ENOMEM;
+    int rc = cs_window_fill(w, m, periodic, w2);
+    if (rc != CS_OK) {
+        free(w2);
+        return rc;
+    }
+    double s2 = 0.0, s4 = 0.0;
+    for (size_t t = 0; t < m; t++) {
+        w2[t] *= w2[t];
+        s2 += w2[t];
+        s4 += w2[t] * w2[t];
+    }
+    if (!(s2 > 0.0)) {
+        free(w2);
+        return CS_EINVAL;
+    }
+    if (ginf)
+        *ginf = N * s4 / (s2 * s2);
+    double s = 1.0;
+    size_t lmax = (size_t)ceil(64.0 * N / (double)m);
+    for (size_t l = 1; g && l < K && l < lmax && l < nfft; l++) {
+        /* sum_t w_t^2 e^{-i th t} by a rotating phasor, renormalised every 1024 steps */
+        double th = 6.28318530717958647692 * (double)l / N, c = cos(th), sn = sin(th);
+        double re = 0.0, im = 0.0, pr = 1.0, pi = 0.0;
+        for (size_t t = 0; t < m; t++) {
+            re += w2[t] * pr;
+            im -= w2[t] * pi;
+            double nr = pr * c - pi * sn;
+            pi = pr * sn + pi * c;
+            pr = nr;
+            if ((t & 1023) == 1023) {
+                double a = 1.0 / sqrt(pr * pr + pi * pi);
+                pr *= a;
+                pi *= a;
+            }
+        }
+        double r2 = (re * re + im * im) / (s2 * s2);
+        s += 2.0 * (1.0 - (double)l / (double)K) * r2;
+    }
+    free(w2);
+    if (g)
+        *g = s;
+    return CS_OK;
+}

@@ -31,12 +31,15 @@
  *
  * The band is then fitted as MEANS OF BLOCKS of K adjacent bins (about 1024 blocks; K = 21 on a
  * 2^17-sample record), with the model averaged over each block (cs_fit_parameters.bin_width,
- * two-point Gauss-Legendre) so that no block width biases a line, and every block at most 1/12
- * of the narrowest fitted line: a fit that comes out with a narrower line is repeated with
- * blocks that short (single bins in the end). The weights follow the block mean's variance: a
- * bin's variance times g(K)/K, where g(K) sums the correlation of neighbouring bins of the
- * padded, windowed transform (block_var_factor), and the errors are scaled by
- * sqrt(enbw/df / g(K)) for what correlation is left between blocks. Where the model describes
+ * two-point Gauss-Legendre matched to the mean of K samples) so that no block width biases a
+ * line, and every block at most 1/12 of the narrowest line: of the era fits' lines before the
+ * fit, of the fitted lines after it (a fit with a narrower line, or one that does not converge,
+ * is repeated with blocks short enough, single bins in the end). The weights follow the block
+ * mean's variance: a bin's variance times g(K)/K, where g(K) sums the correlation of
+ * neighbouring bins of the padded, windowed transform (cs_gate_block_variance; exact where the
+ * floor dominates a block, within ~20 % next to a strong line), and the errors are scaled by
+ * sqrt(ginf / g(K)) for what correlation is left between blocks (ginf = enbw/df for the
+ * rectangular window). Where the model describes
  * the spectrum this gives the single-bin fit's values and errors (within 0.06 of its errors and
  * 0.3 % in tests/test_split.c) at a fraction of the cost (the whole-record estimate went from
  * ~1.2 G to ~0.1 G instructions per 2^17-sample record); where it does not (burst and tail
@@ -316,13 +319,15 @@ static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb)
 }
 
 static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
-                          const double *fy, size_t n, int blocks, cs_split_fit *f, cs_error *err);
+                          const double *fy, size_t n, int blocks, double hint_hz, cs_split_fit *f, cs_error *err);
 
-/* Fit `model` plus the floor to a gated PSD in two passes (split.h), errors scaled by
- * sqrt(enbw/df). band: fit only the bins that hold the lines (whole_band; the whole-record
- * estimate), else the whole axis. Leaves the fit in f->pmodel, f->pfit and sets the spectrum
- * fields; the status is set to OK or a failure (the caller then chooses the component). */
-static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, int band,
+/* Fit `model` plus the floor to a gated PSD in two passes (split.h), errors scaled for the
+ * correlation of neighbouring bins (cs_gate_block_variance). band: fit only the bins that hold
+ * the lines (whole_band; the whole-record estimate) as block means, with hint_hz (NaN: none) the
+ * narrowest line width known beforehand; else the whole axis bin by bin. Leaves the fit in
+ * f->pmodel, f->pfit and sets the spectrum fields; the status is set to OK or a failure (the
+ * caller then chooses the component). */
+static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, int band, double hint_hz,
                      cs_split_fit *f, cs_error *err)
 {
     const cs_spectrum *s = gs->psd;
@@ -336,58 +341,11 @@ static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const cha
     f->nshots = gs->nshots;
     f->df_hz = gs->df_hz;
     f->enbw_hz = gs->enbw_hz;
-    f->err_scale = sqrt(gs->enbw_hz / f->df_hz);
+    f->err_scale = NAN;   /* set by plain_fit_bins */
     f->energy_scale = gs->dt_s * gs->sum_w2;
     f->first = gs->first;
     f->m = gs->m;
-    return plain_fit_bins(cx, gs, model, fx, fy, n, band, f, err);
-}
-
-/* g(K): the variance of the mean of K adjacent bins of the periodogram of white noise, times K,
- * in units of one bin's variance. Bins l apart are correlated by |rho(l)|^2 with
- * rho(l) = sum_t w_t^2 e^{-2 pi i l t / N} / sum_t w_t^2 (the covariance of two DFT bins of
- * circular Gaussian noise, Isserlis' theorem; common practice), so
- * g(K) = sum_{|l| < K} (1 - |l| / K) |rho(l)|^2: 1 for K = 1, and enbw/df for K >> enbw/df
- * (Parseval). A rectangular window has rho(l) = sin(pi l m / N) / (m sin(pi l / N)) (the
- * Dirichlet kernel); other windows are summed sample by sample. NaN when out of memory. */
-static double block_var_factor(const cs_gated_spectrum *gs, size_t K)
-{
-    if (K <= 1)
-        return 1.0;
-    const size_t m = gs->m, N = gs->nfft;
-    const int rect = strcmp(gs->gate.window.type->name, "rect") == 0;
-    double *w2 = NULL, sw2 = 0.0;
-    if (!rect) {
-        if (!(w2 = malloc(m * sizeof *w2)) || cs_window_fill(&gs->gate.window, m, gs->gate.periodic, w2) != CS_OK) {
-            free(w2);
-            return NAN;
-        }
-        for (size_t t = 0; t < m; t++) {
-            w2[t] *= w2[t];
-            sw2 += w2[t];
-        }
-    }
-    double g = 1.0;
-    for (size_t l = 1; l < K; l++) {
-        double th = 6.283185307179586 * (double)l / (double)N, r2;   /* 2 pi l / N */
-        if (rect) {
-            double r = sin(0.5 * th * (double)m) / ((double)m * sin(0.5 * th));
-            r2 = r * r;
-        } else {
-            double re = 0.0, im = 0.0, c = cos(th), s = sin(th), pr = 1.0, pi = 0.0;
-            for (size_t t = 0; t < m; t++) {
-                re += w2[t] * pr;
-                im -= w2[t] * pi;
-                double nr = pr * c - pi * s;
-                pi = pr * s + pi * c;
-                pr = nr;
-            }
-            r2 = (re * re + im * im) / (sw2 * sw2);
-        }
-        g += 2.0 * (1.0 - (double)l / (double)K) * r2;
-    }
-    free(w2);
-    return g;
+    return plain_fit_bins(cx, gs, model, fx, fy, n, band, hint_hz, f, err);
 }
 
 /* Means of blocks of K bins of fx, fy (n bins; the last n % K dropped) into bx, by; the number of
@@ -432,7 +390,10 @@ static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const doub
                         size_t K, double gK, double *pv, double *sig, double *base, cs_error *e2)
 {
     cs_fit_parameters par = cs_fit_default_parameters();
-    par.bin_width = K > 1 ? (double)K * gs->df_hz : 0.0;
+    /* the block is the mean of K samples df apart: the two nodes +-(width/2)/sqrt(3) match its
+       second moment (K^2 - 1) df^2 / 12 when width = df sqrt(K^2 - 1), so the rule is exact
+       for cubics over the K samples, and 0 for single bins */
+    par.bin_width = K > 1 ? gs->df_hz * sqrt((double)K * (double)K - 1.0) : 0.0;
     par.weighting = CS_WEIGHT_NOISE;
     /* the equal-weight pass only starts the weighted ones: when it does not converge (it can
        crawl along a valley of a periodogram, whose scatter grows with the level, until the
@@ -449,7 +410,9 @@ static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const doub
     /* weighted passes: the variance of a periodogram bin of a line plus white noise, with F the
        noise floor (the fitted baseline) and S the line's part (model - floor), is F^2 + 2 F S
        (the noncentral chi-square of two degrees of freedom), divided by the number of shots of a
-       power average, and for a block of K bins multiplied by g(K) / K (block_var_factor). The
+       power average, and for a block of K bins multiplied by g(K) / K (cs_gate_block_variance:
+       exact where the floor dominates, within ~20 % next to a strong line, where the line's part
+       of the variance is correlated differently between bins). The
        floor of the equal-weight pass can be far off when a strong line dominates the residuals,
        so the weights are renewed from each pass's model, up to SPLIT_PASSES times, until the
        floor settles within 1 %. */
@@ -504,10 +467,11 @@ static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const doub
 
 /* The fit of plain_fit on the n bins fx, fy (the spectrum fields of f already set). blocks: the
  * whole-record band, fitted as means of blocks of bins (see the comment at the top): about
- * BLOCK_TARGET blocks, and when a fitted line comes out narrower than BLOCK_PER_FWHM blocks,
- * again with blocks that short (single bins at the end). */
+ * BLOCK_TARGET blocks, none longer than 1/BLOCK_PER_FWHM of hint_hz; when a fitted line comes
+ * out narrower than BLOCK_PER_FWHM blocks, or the fit does not converge, again with blocks short
+ * enough (single bins at the end). */
 static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
-                          const double *fy, size_t n, int blocks, cs_split_fit *f, cs_error *err)
+                          const double *fy, size_t n, int blocks, double hint_hz, cs_split_fit *f, cs_error *err)
 {
     cs_error e2;
     cs_error_clear(&e2);
@@ -520,11 +484,18 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
     const size_t np = f->pmodel->nparams;
     const size_t Kset = blocks ? cx->p->whole_block : 1;   /* 0: automatic */
     size_t K = Kset ? Kset : n >= BLOCK_MIN_BINS ? n / BLOCK_TARGET : 1;
-    K = K < 1 ? 1 : K > n / 8 ? (n / 8 > 1 ? n / 8 : 1) : K;   /* at least 8 points */
+    if (!Kset && hint_hz > 0 && (double)K > hint_hz / (BLOCK_PER_FWHM * gs->df_hz))
+        K = (size_t)(hint_hz / (BLOCK_PER_FWHM * gs->df_hz));
+    size_t kmax = n / (4 * np > 8 ? 4 * np : 8);   /* at least 4 points per parameter, and 8 */
+    K = K > kmax ? kmax : K;
+    K = K < 1 ? 1 : K;
     double *pv = malloc(np * sizeof *pv), *sig = malloc(n * sizeof *sig), *base = malloc(n * sizeof *base);
     double *bx = K > 1 ? malloc(n * sizeof *bx) : NULL;   /* 2 (n / K) <= n for every K >= 2 */
     int rc = !pv || !sig || !base || (K > 1 && !bx) ? CS_ENOMEM : CS_OK;
-    while (rc != CS_ENOMEM) {
+    double ginf = NAN;
+    if (rc == CS_OK)
+        rc = cs_gate_block_variance(&gs->gate.window, gs->gate.periodic, gs->m, gs->nfft, 1, NULL, &ginf);
+    while (rc == CS_OK || rc == CS_ENOCONV || rc == CS_EINVAL) {
         const double *x = fx, *y = fy;
         size_t nx = n;
         if (K > 1) {
@@ -532,21 +503,24 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
             x = bx;
             y = bx + n / K;
         }
-        double gK = block_var_factor(gs, K);
-        if (!isfinite(gK)) {
-            rc = CS_ENOMEM;
+        double gK = 1.0;
+        if (K > 1 && (rc = cs_gate_block_variance(&gs->gate.window, gs->gate.periodic, gs->m, gs->nfft, K, &gK,
+                                                  NULL)) != CS_OK)
             break;
-        }
         cs_fit_result_free(f->pfit);
         f->pfit = NULL;
         f->block = K;
-        f->err_scale = sqrt(fmax(gs->enbw_hz / gs->df_hz / gK, 1.0));
+        f->fmax_hz = fx[nx * K - 1];   /* the last bin fitted */
+        f->err_scale = sqrt(fmax(ginf / gK, 1.0));
         rc = plain_passes(gs, f, x, y, nx, K, gK, pv, sig, base, &e2);
-        double wmin = f->pfit ? narrowest_width(f->pmodel, f->pfit) : NAN;
-        if ((rc != CS_OK && rc != CS_ENOCONV) || K == 1 || Kset || !(wmin < BLOCK_PER_FWHM * (double)K * gs->df_hz))
+        if ((rc != CS_OK && rc != CS_ENOCONV) || K == 1 || Kset)
             break;
-        size_t K2 = (size_t)(wmin / (BLOCK_PER_FWHM * gs->df_hz));
-        K = K2 > 1 && K2 < K ? K2 : 1;
+        double wmin = f->pfit ? narrowest_width(f->pmodel, f->pfit) : NAN;
+        size_t K2 = rc == CS_ENOCONV ? 1 : wmin < BLOCK_PER_FWHM * (double)K * gs->df_hz
+                                               ? (size_t)(wmin / (BLOCK_PER_FWHM * gs->df_hz)) : K;
+        if (K2 >= K)
+            break;
+        K = K2 > 1 ? K2 : 1;
     }
     free(pv);
     free(base);
@@ -563,11 +537,11 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
                  gs->gate.name, model);
         return CS_OK;
     }
-    /* correlated bins: every error (and the covariance) is scaled by sqrt(enbw / df / g(K)) (the
-       correlation left between the fitted points: between single bins enbw/df, little between
-       long blocks); and when the profiles do not describe the spectrum (chi2/dof > 1 with these
-       weights) by sqrt(chi2/dof) too, so that a misfit widens the errors instead of hiding
-       (common practice) */
+    /* correlated bins: every error (and the covariance) is scaled by sqrt(ginf / g(K)) (the
+       correlation left between the fitted points: between single bins ginf, which is enbw/df for
+       a rectangular window, little between long blocks); and when the profiles do not describe
+       the spectrum (chi2/dof > 1 with these weights) by sqrt(chi2/dof) too, so that a misfit
+       widens the errors instead of hiding (common practice) */
     cs_fit_result *r = f->pfit;
     if (r->redchi2 > 1 && isfinite(r->redchi2)) {
         f->err_scale *= sqrt(r->redchi2);
@@ -644,7 +618,7 @@ static int plain_era(const split_ctx *cx, const cs_record *rec, cs_record *const
             *err = e2;
         return rc;
     }
-    rc = plain_fit(cx, gs, model, 0, f, err);
+    rc = plain_fit(cx, gs, model, 0, NAN, f, err);
     cs_gated_spectrum_free(gs);
     if (rc != CS_OK || f->status != CS_SPLIT_OK)
         return rc;
@@ -736,7 +710,14 @@ int cs_split_impl_whole(const split_ctx *cx, const cs_record *rec, cs_record *co
             *err = e2;
         return rc;
     }
-    rc = plain_fit(cx, gs, p->whole_model, 1, f, err);
+    /* the narrowest era line measured so far seeds the blocks' length */
+    double hint = NAN;
+    for (int e = 0; e < CS_SPLIT_NERA; e++) {
+        const cs_split_line *l = &sh->era[e].line;
+        if (l->ok && l->fwhm_hz > 0 && !(l->fwhm_hz >= hint))
+            hint = l->fwhm_hz;
+    }
+    rc = plain_fit(cx, gs, p->whole_model, 1, hint, f, err);
     cs_gated_spectrum_free(gs);
     if (rc != CS_OK || f->status != CS_SPLIT_OK)
         return rc;

@@ -514,6 +514,24 @@ typedef struct cs_gated_spectrum {
 int cs_gate_spectrum(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g,
                      const cs_gate_options *o, cs_gated_spectrum **out, cs_error *err);
 
+/* Statistics of averaged neighbouring bins. For white circular Gaussian noise seen through a
+ * gate of m samples with window w in an N-point transform (zero-padded when N > m), the power
+ * spectra of bins l apart are correlated by |rho(l)|^2 with
+ * rho(l) = sum_t w_t^2 e^{-2 pi i l t / N} / sum_t w_t^2 (Isserlis' theorem). The mean of K
+ * adjacent bins then has K times its variance equal to one bin's variance times
+ *     *g = sum_{|l| < K} (1 - |l| / K) |rho(l)|^2     (1 for K = 1),
+ * which tends, for long blocks, to
+ *     *ginf = N sum w^4 / (sum w^2)^2                   (Parseval; pad = N / m for rect),
+ * the factor by which errors from fitting single bins as independent must be scaled (it is
+ * enbw/df only for the rectangular window). Exact for blocks where the noise dominates; where
+ * a line dominates, its part of a bin's variance is correlated as Re(rho) instead of |rho|^2
+ * and depends on where the signal sits in the gate. Rectangular windows use the Dirichlet
+ * kernel in closed form; others are summed over the gate (lags beyond 64 N/m are dropped:
+ * a tapered window's correlation has fallen far below 1e-6 there). Either output may be NULL.
+ * Returns CS_OK, CS_EINVAL (m < 1, N < m, K < 1, invalid window), CS_ENOMEM. */
+int cs_gate_block_variance(const cs_window *w, int periodic, size_t m, size_t nfft, size_t K, double *g,
+                           double *ginf);
+
 /* Several gates of one record: out[i] for gates[i] (each reused as above). Stops at the first
  * failure (out[i] for later gates untouched). */
 int cs_gate_spectra(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *gates,

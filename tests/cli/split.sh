@@ -77,7 +77,10 @@ sh = d["shots"][0]
 assert abs(sh["lo_hz"] - lo) < 1 and abs(sh["reference_hz"] - ref) < 1 and sh["reference_from"] == "metadata"
 assert sh["whole_record"]["fit"]["model"] == "sech2+lorentz"
 fr = sh["whole_record"]["fit"]["fit_range"]
-assert s["whole_block"] == "auto" and fr["block_bins"] >= 1
+assert s["whole_block"] == "auto" and fr["block_bins"] >= 2, fr
+# the automatic blocks are at most 1/12 of the narrowest fitted line
+narrow = min(c["fwhm_hz"] for c in sh["whole_record"]["fit"]["components"])
+assert narrow >= 12 * fr["block_hz"] * (1 - 1e-9), (narrow, fr)
 assert abs(fr["block_hz"] - fr["block_bins"] * fr["df_hz"]) <= 1e-9 * fr["block_hz"]
 assert set(sh["agreement"]["tail"]) >= {"whole_record", "pencil"}
 for e in ("burst", "tail"):
