@@ -79,6 +79,9 @@ struct cs_fit_workspace {
     double *theta;          /* pmax: internal variables (start of a solve) */
     double *thcache;        /* pmax: internal variables of the last evaluation */
     double *dpdt;           /* pmax: transform derivatives */
+    double *jtj;            /* pmax x pmax: J^T J of the solver's Jacobian (k x k, lower triangle,
+                               row-major), formed by the Jacobian callback while it writes J */
+    const double *jtj_of;   /* the data of the GSL matrix that jtj belongs to, NULL if none */
     int cache_ok;           /* thcache/mval/Jfull valid and finite */
     int p_evaluated;        /* mval/res/dfac/Jfull are those at p and the data y (set by a solve
                                that ended on its last evaluated point; see cs_fit_impl_eval) */
