@@ -135,6 +135,9 @@
 static const gsl_multifit_nlinear_solver fit_solver_chol; /* below: the linear solver */
 static const gsl_multifit_nlinear_scale fit_scale_more;    /* and the scaling */
 
+/* The workspace whose solve runs in this thread (GSL's scaling callback is given J alone). */
+static _Thread_local const cs_fit_workspace *solving;
+
 /* GSL's workspace is tied to (n, p, method): keep it while they stay the same. */
 static int ensure_gsl(cs_fit_workspace *w, size_t n, size_t k, int accel)
 {
@@ -627,7 +630,17 @@ static int scale_update(const gsl_matrix *J, gsl_vector *diag)
 {
     enum { MAXK = 64 };
     const size_t n = J->size1, k = J->size2;
+    const cs_fit_workspace *w = solving;
     double ss[MAXK];
+    if (w && w->jtj_of == J->data && w->nfree == k) {
+        /* the Jacobian callback has just formed J^T J for this J: its diagonal */
+        for (size_t j = 0; j < k; j++) {
+            double nr = sqrt(w->jtj[j * k + j]);
+            double *d = gsl_vector_ptr(diag, j);
+            *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
+        }
+        return GSL_SUCCESS;
+    }
     if (k > MAXK) {
         for (size_t j = 0; j < k; j++) {
             gsl_vector_const_view c = gsl_matrix_const_column(J, j);
@@ -809,8 +822,10 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
     w->fdf.params = w;
     w->last_nan = 0;
     gsl_vector_view th0 = gsl_vector_view_array(w->theta, k);
+    solving = w;
     int s = gsl_multifit_nlinear_winit(&th0.vector, NULL, &w->fdf, w->gw);
     if (s != GSL_SUCCESS || w->last_nan) {
+        solving = NULL;
         o->status = CS_FIT_MODEL_NAN;
         o->stop = CS_FIT_STOP_MODEL_NAN;
         o->nfev = w->nfev;
@@ -886,6 +901,7 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
             break;
         }
     }
+    solving = NULL;
     const gsl_vector *x = gsl_multifit_nlinear_position(gw);
     for (size_t j = 0; j < k; j++)
         w->pwork[j] = gsl_vector_get(x, j);
