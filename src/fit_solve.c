@@ -464,23 +464,25 @@ static int cb_df(const gsl_vector *th, void *params, gsl_matrix *J)
         ties |= w->fr[j].tie1 > w->fr[j].tie0;
     }
     double *jc = w->Jc; /* the same Jacobian by columns, for J^T J (scratch until the covariance) */
-    int bad = 0;
     enum { FAST_K = 32 };
     if (!ties && k <= FAST_K) {
         /* no ties (the usual case): each column is one column of the model's Jacobian */
         size_t idx[FAST_K];
-        for (size_t j = 0; j < k; j++)
+        double dp[FAST_K];
+        for (size_t j = 0; j < k; j++) {
             idx[j] = w->fr[j].idx;
-        for (size_t i = 0; i < n; i++) {
-            const double *row = w->Jfull + i * np;
-            double *out = J->data + i * J->tda, d = w->dfac[i], acc = 0.0;
+            dp[j] = w->dpdt[j];
+        }
+        const double *row = w->Jfull, *dfac = w->dfac;
+        double *out = J->data;
+        const size_t tda = J->tda;
+        for (size_t i = 0; i < n; i++, row += np, out += tda) {
+            const double d = dfac[i];
             for (size_t j = 0; j < k; j++) {
-                double v = row[idx[j]] * d * w->dpdt[j];
-                acc += v * 0.0; /* NaN when some v is Inf or NaN */
+                double v = row[idx[j]] * d * dp[j];
                 out[j] = v;
                 jc[j * n + i] = v;
             }
-            bad |= isnan(acc);
         }
     } else {
         for (size_t i = 0; i < n; i++) {
@@ -488,15 +490,19 @@ static int cb_df(const gsl_vector *th, void *params, gsl_matrix *J)
             double *out = J->data + i * J->tda, d = w->dfac[i];
             for (size_t j = 0; j < k; j++) {
                 double v = cs_fit_impl_column(w, row, &w->fr[j]) * d * w->dpdt[j];
-                bad |= !isfinite(v);
                 out[j] = v;
                 jc[j * n + i] = v;
             }
         }
     }
-    if (bad)
-        return GSL_EDOM;
     gram_cols(jc, n, k, w->jtj);
+    /* an Inf or NaN in column j makes (J^T J)_jj Inf or NaN; only then is the column scanned
+       (entries so large that their squares overflow are still finite) */
+    for (size_t j = 0; j < k; j++)
+        if (!isfinite(w->jtj[j * k + j]))
+            for (size_t i = 0; i < n; i++)
+                if (!isfinite(jc[j * n + i]))
+                    return GSL_EDOM;
     w->jtj_of = J->data;
     return GSL_SUCCESS;
 }
