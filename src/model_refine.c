@@ -297,10 +297,24 @@ static int comp_shape(const cs_profile_type *t, const double *q, const double *x
         al *= eta;
         ag *= 1.0 - eta;
         for (size_t i = 0; i < n; i++) {
-            double u = x[i] - c0, e = u * ih, v = al / (1.0 + e * e);
-            if (ag != 0.0 && fabs(u) < ul)
-                v += ag * exp_neg(kg * u * u);
-            out[i] = v;
+            double e = (x[i] - c0) * ih;
+            out[i] = al / (1.0 + e * e);
+        }
+        if (ag != 0.0) {
+            /* x ascends (cs_model_guess checks it): |u| < ul is one run of points, found by
+               bisection */
+            size_t lo = 0, hi = n;
+            while (lo < hi) {
+                size_t mid = lo + (hi - lo) / 2;
+                if (x[mid] - c0 <= -ul)
+                    lo = mid + 1;
+                else
+                    hi = mid;
+            }
+            for (size_t i = lo; i < n && x[i] - c0 < ul; i++) {
+                double u = x[i] - c0;
+                out[i] += ag * exp_neg(kg * u * u);
+            }
         }
         return CS_OK;
     }
