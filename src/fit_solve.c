@@ -25,16 +25,30 @@
  * Step solver. GSL's Levenberg-Marquardt trust region (gsl_multifit_nlinear_trs_lm; trs_lmaccel
  * with geodesic acceleration, M. K. Transtrum, B. B. Machta and J. P. Sethna, Phys. Rev. E 83,
  * 036701 (2011)) solves its subproblem through the normal equations with GSL's modified Cholesky
- * (gsl_multifit_nlinear_solver_mcholesky, which stays usable when J^T J is singular): a step only
- * has to lower the cost, the accuracy of the solution is set by the residuals and the Jacobian.
- * It is about a third faster than the QR solver on 2048 x 9 Jacobians and gives the NIST StRD
- * results to the same digits (tests/test_fit.c). The covariance is formed by QR (fit_covar.c).
- * Measured on 100 spectra of bench/bench_fit.c (GSL 2.7): the plain Cholesky solver gives the
- * same iterations; Levenberg scaling (D = I) about 40 % more; dogleg, double dogleg and the 2D
+ * (gsl_linalg_mcholesky_decomp, which stays usable when J^T J is singular): a step only has to
+ * lower the cost, the accuracy of the solution is set by the residuals and the Jacobian. It is
+ * about a third faster than the QR solver on 2048 x 9 Jacobians and gives the NIST StRD results
+ * to the same digits (tests/test_fit.c). The covariance is formed by QR (fit_covar.c). Measured
+ * on 100 spectra of bench/bench_fit.c (GSL 2.7): the plain Cholesky solver gives the same
+ * iterations; Levenberg scaling (D = I) about 40 % more; dogleg, double dogleg and the 2D
  * subspace method the same iterations but 15-25 % of the fits ending without progress near the
- * minimum (their trial steps come from the undamped Gauss-Newton step). The BLAS calls behind
- * GSL (J^T J, J^T f, J dx, norms) are a fifth of a fit's instructions with GSL's reference CBLAS
- * and a twentieth with OpenBLAS (-DCS_OPENBLAS=ON; off by default, see CMakeLists.txt).
+ * minimum (their trial steps come from the undamped Gauss-Newton step).
+ *
+ * Normal equations formed once. GSL's own solver (gsl_multifit_nlinear_solver_mcholesky) forms
+ * J^T J with gsl_blas_dsyrk at every iteration and -J^T f with a gsl_blas_dgemv at every trial,
+ * and More's scaling (gsl_multifit_nlinear_scale_more) takes one strided gsl_blas_dnrm2 per
+ * column; with GSL's reference CBLAS these were a third of a fit's instructions. GSL lets a
+ * caller supply both pieces (gsl_multifit_nlinear_parameters.solver and .scale), so the
+ * trust region here gets its own: the Jacobian callback writes J for GSL and, in the same pass,
+ * a copy by columns from which J^T J is summed in registers (3 x 3 blocks, two rows at a time);
+ * the solver copies that matrix, adds mu D^2 and calls the same gsl_linalg_mcholesky_decomp and
+ * _solve, with -J^T f = -g (the trust region's gradient, which GSL computes right after each
+ * Jacobian) whenever the right-hand side is the current residual vector; the scaling takes the
+ * column norms from the diagonal of J^T J. The Gauss-Newton step of the convergence test below
+ * uses the same J^T J and g. Where the callback's matrix is not at hand (another workspace's J)
+ * both fall back to the BLAS calls. The trust region itself, its step acceptance and its damping
+ * (Nielsen's update) are GSL's unchanged. What remains of BLAS (J dx and the norms of f inside
+ * the trust region, g) is about a sixth of a fit's instructions with GSL's reference CBLAS.
  *
  * One model evaluation per iteration. The residual callback evaluates model and Jacobian
  * together (a Voigt value and all its derivatives come from one Faddeeva evaluation) and keeps
