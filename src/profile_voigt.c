@@ -44,24 +44,6 @@
  * chains are cheaper than w_of_z. Checked against 40-digit mpmath on |z| from 5.5 to 60, y from
  * 1e-8 to 5: at most 6e-16 relative to V itself, never worse than w_of_z at the same points.
  *
- * Continued fraction. Where libcerf's w_of_z itself evaluates w by the Laplace continued fraction
- * (|x| > 6 and y > 0.1, |x| > 8 and y > 1e-10, |x| > 28, or y > 7; z = x + iy), value and
- * derivatives in the asymptotic region come from that fraction directly, with no cancellation:
- *     w = (i/sqrt pi) / D_1,   D_j = z - (j/2) / D_{j+1}   (D at the deepest level = z)
- * (DLMF 7.9.3; the form and the level count 3.9 + 11.398/(0.08254|x| + 0.1421 y + 0.2023) of
- * S. G. Johnson's Faddeeva package, which libcerf's w_of_z is), and since z - D_1 = 1/(2 D_2) and
- * z - D_2 = 1/D_3, exactly
- *     z w - i/sqrt(pi) = (i/sqrt pi) / (2 D_1 D_2),  so  w' = -(i/sqrt pi) / (D_1 D_2),
- *     q = z w' + w = -(i/sqrt pi) / (D_1 D_2 D_3):
- * products of the fraction's own levels, nothing subtracted. With CF_EXTRA = 4 levels more than
- * w_of_z takes (D_3 is a fraction two levels shorter, and a derivative needs its tail as accurate
- * as w's), checked against 90-digit mpmath at 1900 points of that region (|z| from 8 to 1e6,
- * y down to 1e-10, both signs of x) while writing this: V <= 3.5e-16 relative to |w|,
- * dV/dcenter and dV/dgamma <= 6e-16 relative to |w'|, dV/ds <= 7.5e-16 relative to |q| (with
- * 3 extra levels 2.4e-15). Per point it is a third of the series' cost (about 18 complex
- * divisions at |z| = 8). The series below serves the rest: s = 0, |z| > 1e8, and the points
- * near the real axis (y <= 0.1 at |x| <= 8), where the Stokes term matters.
- *
  * Limits. fwhm_g = 0 (s = 0) is the Lorentzian: t = 0, S1 = S2 = 1, dV/ds = 0. fwhm_l = 0 is
  * the Gaussian: w_of_z accepts real z, and no formula divides by gamma. The value uses w_of_z
  * whenever s > 0 and |z| <= 1e8; beyond, V = -Im((1 + t/2)/zeta)/pi, exact to double precision.
@@ -80,7 +62,6 @@
 
 #define ASYM_Z 8.0          /* |z| from which derivatives use the asymptotic series */
 #define VALUE_SERIES_Z 1e8  /* |z| from which the value uses it as well */
-#define CF_EXTRA 4          /* continued-fraction levels beyond w_of_z's own count */
 
 /* (2k+1)!!/2^k and (k+1)(2k+1)!!/2^k, k = 0..39 (exact rationals rounded to double). */
 #define SER_MAX 40
@@ -131,47 +112,6 @@ static int series_terms(double az)
     return 34;
 }
 
-/* Where voigt_cf serves (z = x + iy, y >= 0): the region where libcerf's w_of_z itself uses the
- * continued fraction, |x| > 6 with y > 0.1, |x| > 8 with y > 1e-10, |x| > 28, or y > 7. */
-static inline int cf_region(double x, double y)
-{
-    double ax = fabs(x);
-    return (ax > 6.0 && (y > 0.1 || (ax > 8.0 && y > 1e-10) || ax > 28.0)) || y > 7.0;
-}
-
-/* V and its derivatives (as voigt_kernel gives them) at z = x + iy in cf_region, from the Laplace
- * continued fraction w(z) = (i/sqrt pi) / D_1, D_j = z - (j/2) / D_{j+1} (see the essay). */
-static void voigt_cf(double x, double y, double s, double *v, double *dv)
-{
-    int levels = (int)(3.9 + 11.398 / (0.08254 * fabs(x) + 0.1421 * y + 0.2023)) + CF_EXTRA;
-    double dr = x, di = y;      /* D_levels = z */
-    double a = 0.5 * (double)(levels - 1);
-    for (int j = levels - 1; j >= 3; j--, a -= 0.5) {
-        double inv = a / (dr * dr + di * di);   /* D_j = z - (j/2) conj(D_{j+1})/|D_{j+1}|^2 */
-        dr = x - dr * inv;
-        di = y + di * inv;
-    }
-    double inv3 = 1.0 / (dr * dr + di * di);
-    double p3r = dr * inv3, p3i = -di * inv3;                       /* 1/D_3 */
-    dr = x - p3r;                                                   /* D_2 = z - 1/D_3 */
-    di = y - p3i;
-    double inv2 = 1.0 / (dr * dr + di * di);
-    double p2r = dr * inv2, p2i = -di * inv2;                       /* 1/D_2 */
-    dr = x - 0.5 * p2r;                                             /* D_1 = z - (1/2)/D_2 */
-    di = y - 0.5 * p2i;
-    double inv = 1.0 / (dr * dr + di * di);
-    double p1r = dr * inv, p1i = -di * inv;                         /* 1/D_1 */
-    double ar = p1r * p2r - p1i * p2i, ai = p1r * p2i + p1i * p2r;  /* 1/(D_1 D_2) */
-    double bi = ar * p3i + ai * p3r;                                /* Im 1/(D_1 D_2 D_3) */
-    /* w = i P1/sqrt(pi), w' = -i A/sqrt(pi), q = -i B/sqrt(pi): V = Re w/(s sqrt pi) etc. */
-    double c = 1.0 / (PI_ * s);
-    *v = -p1i * c;
-    c /= s;
-    dv[0] = -ai * c;
-    dv[1] = -bi * c;
-    dv[2] = ar * c;
-}
-
 /* Unit-area Voigt at u with s = fwhm_g/(2 sqrt ln 2) >= 0 and gamma = fwhm_l/2 >= 0, not both 0.
  * *v = V(u). When dv is not NULL: dv[0] = dV/dcenter, dv[1] = dV/ds, dv[2] = dV/dgamma. */
 static void voigt_kernel(double u, double s, double gamma, double *v, double *dv)
@@ -180,10 +120,6 @@ static void voigt_kernel(double u, double s, double gamma, double *v, double *dv
     double r = (r2 > 1e-300 && r2 < 1e300) ? sqrt(r2) : hypot(u, gamma);   /* |zeta| */
     if (!(r < ASYM_Z * s)) {
         /* asymptotic region (always when s == 0) */
-        if (dv && s > 0.0 && r <= VALUE_SERIES_Z * s && cf_region(u / s, gamma / s)) {
-            voigt_cf(u / s, gamma / s, s, v, dv);
-            return;
-        }
         double ri = 1.0 / r;
         double er = u * ri * ri, ei = -gamma * ri * ri;        /* 1/zeta */
         double sr = s * er, si = s * ei;                       /* s/zeta */
