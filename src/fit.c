@@ -131,7 +131,7 @@ int cs_fit_impl_reserve(cs_fit_workspace *w, size_t n, size_t np)
     for (size_t i = 0; i < sizeof vp / sizeof vp[0]; i++)
         bad |= !(*vp[i] = malloc(pp * sizeof(double)));
     bad |= !(w->Jfull = malloc(nn * pp * sizeof(double)));
-    bad |= !(w->Jc = malloc(nn * pp * sizeof(double)));
+    bad |= !(w->Jc = malloc((nn + 16) * pp * sizeof(double))); /* FIT_JC_LD(nn) <= nn + 15 */
     bad |= !(w->cwork = malloc(pp * pp * sizeof(double)));
     bad |= !(w->gram = malloc(pp * pp * sizeof(double)));
     bad |= !(w->cfree = malloc(pp * pp * sizeof(double)));

@@ -62,7 +62,8 @@ struct cs_fit_workspace {
     double *mfit;           /* model at the fitted parameters (resampling) */
     double *efit;           /* standardised residuals at the fit (bootstrap) */
     double *Jfull;          /* n x nparams Jacobian of the model, row-major, leading dim np */
-    double *Jc;             /* n x k scratch: Jacobian for the covariance */
+    double *Jc;             /* n x k scratch: Jacobian for the covariance; during a solve the
+                               Jacobian by columns, FIT_JC_LD(n) apart ((nmax + 16) x pmax) */
 
     /* the model and its free parameters */
     const cs_model *m;
@@ -106,6 +107,9 @@ struct cs_fit_workspace {
     gsl_multifit_nlinear_fdf fdf;
     gsl_rng *rng;
 };
+
+/* Column stride of the Jacobian by columns in Jc: n rounded up to whole cache lines, plus one. */
+#define FIT_JC_LD(n) ((((n) + 7) & ~(size_t)7) + 8)
 
 /* fit.c */
 /* Resize the arrays for n points and np parameters (kept when big enough). CS_OK or CS_ENOMEM. */
