@@ -89,7 +89,7 @@ static void ws_release(cs_fit_workspace *w)
     double **d[] = {&w->x, &w->y, &w->sig, &w->ysim, &w->sw, &w->mval, &w->dfac, &w->res,
                     &w->work, &w->mfit, &w->efit, &w->Jfull, &w->Jc, &w->tiefac, &w->tie_fac,
                     &w->scale, &w->pbase, &w->p, &w->theta, &w->thcache, &w->dpdt, &w->cwork,
-                    &w->gram, &w->cfree, &w->colnorm, &w->nrm, &w->und, &w->pwork, &w->pstart,
+                    &w->gram, &w->cfree, &w->jtj, &w->colnorm, &w->nrm, &w->und, &w->pwork, &w->pstart,
                     &w->psol, &w->ptry, &w->pbest, &w->prep, &w->acc_mean, &w->acc_m2, &w->ppre};
     for (size_t i = 0; i < sizeof d / sizeof d[0]; i++) {
         free(*d[i]);
@@ -139,10 +139,11 @@ int cs_fit_impl_reserve(cs_fit_workspace *w, size_t n, size_t np)
     for (size_t i = 0; i < sizeof vp / sizeof vp[0]; i++)
         bad |= !(*vp[i] = malloc(pp * sizeof(double)));
     bad |= !(w->Jfull = malloc(nn * pp * sizeof(double)));
-    bad |= !(w->Jc = malloc(nn * pp * sizeof(double)));
+    bad |= !(w->Jc = malloc((nn + 16) * pp * sizeof(double))); /* FIT_JC_LD(nn) <= nn + 15 */
     bad |= !(w->cwork = malloc(pp * pp * sizeof(double)));
     bad |= !(w->gram = malloc(pp * pp * sizeof(double)));
     bad |= !(w->cfree = malloc(pp * pp * sizeof(double)));
+    bad |= !(w->jtj = malloc(pp * pp * sizeof(double)));
     bad |= !(w->keep = malloc(pp * sizeof *w->keep));
     bad |= !(w->fr = malloc(pp * sizeof *w->fr));
     bad |= !(w->freeof = malloc(pp * sizeof *w->freeof));

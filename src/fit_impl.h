@@ -62,7 +62,8 @@ struct cs_fit_workspace {
     double *mfit;           /* model at the fitted parameters (resampling) */
     double *efit;           /* standardised residuals at the fit (bootstrap) */
     double *Jfull;          /* n x nparams Jacobian of the model, row-major, leading dim np */
-    double *Jc;             /* n x k scratch: Jacobian for the covariance */
+    double *Jc;             /* n x k scratch: Jacobian for the covariance; during a solve the
+                               Jacobian by columns, FIT_JC_LD(n) apart ((nmax + 16) x pmax) */
 
     /* the model and its free parameters */
     const cs_model *m;
@@ -79,6 +80,9 @@ struct cs_fit_workspace {
     double *theta;          /* pmax: internal variables (start of a solve) */
     double *thcache;        /* pmax: internal variables of the last evaluation */
     double *dpdt;           /* pmax: transform derivatives */
+    double *jtj;            /* pmax x pmax: J^T J of the solver's Jacobian (k x k, lower triangle,
+                               row-major), formed by the Jacobian callback while it writes J */
+    const double *jtj_of;   /* the data of the GSL matrix that jtj belongs to, NULL if none */
     int cache_ok;           /* thcache/mval/Jfull valid and finite */
     int p_evaluated;        /* mval/res/dfac/Jfull are those at p and the data y (set by a solve
                                that ended on its last evaluated point; see cs_fit_impl_eval) */
@@ -110,6 +114,9 @@ struct cs_fit_workspace {
     gsl_multifit_nlinear_fdf fdf;
     gsl_rng *rng;
 };
+
+/* Column stride of the Jacobian by columns in Jc: n rounded up to whole cache lines, plus one. */
+#define FIT_JC_LD(n) ((((n) + 7) & ~(size_t)7) + 8)
 
 /* fit.c */
 /* Resize the arrays for n points and np parameters (kept when big enough). CS_OK or CS_ENOMEM. */

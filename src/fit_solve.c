@@ -25,16 +25,30 @@
  * Step solver. GSL's Levenberg-Marquardt trust region (gsl_multifit_nlinear_trs_lm; trs_lmaccel
  * with geodesic acceleration, M. K. Transtrum, B. B. Machta and J. P. Sethna, Phys. Rev. E 83,
  * 036701 (2011)) solves its subproblem through the normal equations with GSL's modified Cholesky
- * (gsl_multifit_nlinear_solver_mcholesky, which stays usable when J^T J is singular): a step only
- * has to lower the cost, the accuracy of the solution is set by the residuals and the Jacobian.
- * It is about a third faster than the QR solver on 2048 x 9 Jacobians and gives the NIST StRD
- * results to the same digits (tests/test_fit.c). The covariance is formed by QR (fit_covar.c).
- * Measured on 100 spectra of bench/bench_fit.c (GSL 2.7): the plain Cholesky solver gives the
- * same iterations; Levenberg scaling (D = I) about 40 % more; dogleg, double dogleg and the 2D
+ * (gsl_linalg_mcholesky_decomp, which stays usable when J^T J is singular): a step only has to
+ * lower the cost, the accuracy of the solution is set by the residuals and the Jacobian. It is
+ * about a third faster than the QR solver on 2048 x 9 Jacobians and gives the NIST StRD results
+ * to the same digits (tests/test_fit.c). The covariance is formed by QR (fit_covar.c). Measured
+ * on 100 spectra of bench/bench_fit.c (GSL 2.7): the plain Cholesky solver gives the same
+ * iterations; Levenberg scaling (D = I) about 40 % more; dogleg, double dogleg and the 2D
  * subspace method the same iterations but 15-25 % of the fits ending without progress near the
- * minimum (their trial steps come from the undamped Gauss-Newton step). The BLAS calls behind
- * GSL (J^T J, J^T f, J dx, norms) are a fifth of a fit's instructions with GSL's reference CBLAS
- * and a twentieth with OpenBLAS (-DCS_OPENBLAS=ON; off by default, see CMakeLists.txt).
+ * minimum (their trial steps come from the undamped Gauss-Newton step).
+ *
+ * Normal equations formed once. GSL's own solver (gsl_multifit_nlinear_solver_mcholesky) forms
+ * J^T J with gsl_blas_dsyrk at every iteration and -J^T f with a gsl_blas_dgemv at every trial,
+ * and More's scaling (gsl_multifit_nlinear_scale_more) takes one strided gsl_blas_dnrm2 per
+ * column; with GSL's reference CBLAS these were a third of a fit's instructions. GSL lets a
+ * caller supply both pieces (gsl_multifit_nlinear_parameters.solver and .scale), so the
+ * trust region here gets its own: the Jacobian callback writes J for GSL and, in the same pass,
+ * a copy by columns from which J^T J is summed in registers (3 x 3 blocks, two rows at a time);
+ * the solver copies that matrix, adds mu D^2 and calls the same gsl_linalg_mcholesky_decomp and
+ * _solve, with -J^T f = -g (the trust region's gradient, which GSL computes right after each
+ * Jacobian) whenever the right-hand side is the current residual vector; the scaling takes the
+ * column norms from the diagonal of J^T J. The Gauss-Newton step of the convergence test below
+ * uses the same J^T J and g. Where the callback's matrix is not at hand (another workspace's J)
+ * both fall back to the BLAS calls. The trust region itself, its step acceptance and its damping
+ * (Nielsen's update) are GSL's unchanged. What remains of BLAS (J dx and the norms of f inside
+ * the trust region, g) is about a sixth of a fit's instructions with GSL's reference CBLAS.
  *
  * One model evaluation per iteration. The residual callback evaluates model and Jacobian
  * together (a Voigt value and all its derivatives come from one Faddeeva evaluation) and keeps
@@ -115,6 +129,7 @@
 
 #include <float.h>
 #include <math.h>
+#include <stdlib.h>
 #include <string.h>
 
 #define PI_ 3.14159265358979323846
@@ -131,6 +146,12 @@
 
 /* ---------------------------------------------------------------- GSL workspace */
 
+static const gsl_multifit_nlinear_solver fit_solver_chol; /* below: the linear solver */
+static const gsl_multifit_nlinear_scale fit_scale_more;    /* and the scaling */
+
+/* The workspace whose solve runs in this thread (GSL's scaling callback is given J alone). */
+static _Thread_local const cs_fit_workspace *solving;
+
 /* GSL's workspace is tied to (n, p, method): keep it while they stay the same. */
 static int ensure_gsl(cs_fit_workspace *w, size_t n, size_t k, int accel)
 {
@@ -140,8 +161,8 @@ static int ensure_gsl(cs_fit_workspace *w, size_t n, size_t k, int accel)
         gsl_multifit_nlinear_free(w->gw);
     gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
     fp.trs = accel ? gsl_multifit_nlinear_trs_lmaccel : gsl_multifit_nlinear_trs_lm;
-    fp.scale = gsl_multifit_nlinear_scale_more;
-    fp.solver = gsl_multifit_nlinear_solver_mcholesky;
+    fp.scale = &fit_scale_more;
+    fp.solver = &fit_solver_chol;
     w->gw = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, n, k);
     if (!w->gw)
         return CS_ENOMEM;
@@ -416,11 +437,85 @@ static int cb_f(const gsl_vector *th, void *params, gsl_vector *f)
     return GSL_SUCCESS;
 }
 
+/* Lower triangle of a = B^T B (row-major k x k) for the n x k matrix B stored by columns
+ * (column j at b + j ld). Blocks of up to 3 x 3 entries are summed in registers over the rows, two
+ * rows at a time (even and odd rows in the two lanes of a vector where the compiler has them,
+ * added at the end): about 1.5 instructions per product instead of the 7 of a plain loop over a
+ * row-major matrix (gsl_blas_dsyrk with GSL's reference CBLAS). */
+#if defined(__GNUC__)
+typedef double fit_v2 __attribute__((vector_size(16)));
+#define GRAM_LANES 2
+#else
+typedef double fit_v2;
+#define GRAM_LANES 1
+#endif
+
+static inline fit_v2 v2_load(const double *p)
+{
+    fit_v2 v;
+    memcpy(&v, p, sizeof v);
+    return v;
+}
+
+static inline double v2_sum(fit_v2 v)
+{
+#if GRAM_LANES == 2
+    return v[0] + v[1];
+#else
+    return v;
+#endif
+}
+
+/* Entries (r0 + i, c0 + j), i, j < 3, of B^T B, stored where c0 + j <= r0 + i < k (columns past
+ * k - 1 are computed as copies of the last one and not stored). */
+static void gram_block(const double *b, size_t n, size_t ld, size_t k, double *a, size_t r0, size_t c0)
+{
+    const double *x0 = b + r0 * ld, *x1 = b + (r0 + 1 < k ? r0 + 1 : k - 1) * ld,
+                 *x2 = b + (r0 + 2 < k ? r0 + 2 : k - 1) * ld;
+    const double *y0 = b + c0 * ld, *y1 = b + (c0 + 1 < k ? c0 + 1 : k - 1) * ld,
+                 *y2 = b + (c0 + 2 < k ? c0 + 2 : k - 1) * ld;
+    fit_v2 s00 = {0}, s01 = {0}, s02 = {0}, s10 = {0}, s11 = {0}, s12 = {0}, s20 = {0}, s21 = {0},
+           s22 = {0};
+    size_t t = 0;
+    for (; t + GRAM_LANES <= n; t += GRAM_LANES) {
+        fit_v2 u0 = v2_load(x0 + t), u1 = v2_load(x1 + t), u2 = v2_load(x2 + t);
+        fit_v2 v0 = v2_load(y0 + t), v1 = v2_load(y1 + t), v2 = v2_load(y2 + t);
+        s00 += u0 * v0;
+        s01 += u0 * v1;
+        s02 += u0 * v2;
+        s10 += u1 * v0;
+        s11 += u1 * v1;
+        s12 += u1 * v2;
+        s20 += u2 * v0;
+        s21 += u2 * v1;
+        s22 += u2 * v2;
+    }
+    double r[3][3] = {{v2_sum(s00), v2_sum(s01), v2_sum(s02)},
+                      {v2_sum(s10), v2_sum(s11), v2_sum(s12)},
+                      {v2_sum(s20), v2_sum(s21), v2_sum(s22)}};
+    const double *xs[3] = {x0, x1, x2}, *ys[3] = {y0, y1, y2};
+    for (size_t i = 0; i < 3 && r0 + i < k; i++)
+        for (size_t j = 0; j < 3 && c0 + j <= r0 + i; j++) {
+            double v = r[i][j];
+            for (size_t u = t; u < n; u++)
+                v += xs[i][u] * ys[j][u];
+            a[(r0 + i) * k + c0 + j] = v;
+        }
+}
+
+static void gram_cols(const double *b, size_t n, size_t ld, size_t k, double *a)
+{
+    for (size_t r0 = 0; r0 < k; r0 += 3)
+        for (size_t c0 = 0; c0 <= r0; c0 += 3)
+            gram_block(b, n, ld, k, a, r0, c0);
+}
+
 static int cb_df(const gsl_vector *th, void *params, gsl_matrix *J)
 {
     cs_fit_workspace *w = params;
     const size_t n = w->n, k = w->nfree, np = w->np;
     w->njev++;
+    w->jtj_of = NULL;
     int same = w->cache_ok;
     for (size_t j = 0; same && j < k; j++)
         same = gsl_vector_get(th, j) == w->thcache[j];
@@ -431,36 +526,233 @@ static int cb_df(const gsl_vector *th, void *params, gsl_matrix *J)
         w->dpdt[j] = tr_deriv(&w->fr[j], w->thcache[j]);
         ties |= w->fr[j].tie1 > w->fr[j].tie0;
     }
-    int bad = 0;
+    /* the same Jacobian by columns, for J^T J (w->Jc: scratch until the covariance); the columns
+       lie a whole number of cache lines plus one apart, so that the k stores of a row do not all
+       fall into one cache set as they would with a power-of-two stride */
+    double *jc = w->Jc;
+    const size_t ldc = FIT_JC_LD(n);
     enum { FAST_K = 32 };
     if (!ties && k <= FAST_K) {
         /* no ties (the usual case): each column is one column of the model's Jacobian */
         size_t idx[FAST_K];
-        for (size_t j = 0; j < k; j++)
+        double dp[FAST_K];
+        for (size_t j = 0; j < k; j++) {
             idx[j] = w->fr[j].idx;
+            dp[j] = w->dpdt[j];
+        }
+        const double *row = w->Jfull, *dfac = w->dfac;
+        double *out = J->data;
+        const size_t tda = J->tda;
+        for (size_t i = 0; i < n; i++, row += np, out += tda) {
+            const double d = dfac[i];
+            for (size_t j = 0; j < k; j++) {
+                double v = row[idx[j]] * d * dp[j];
+                out[j] = v;
+                jc[j * ldc + i] = v;
+            }
+        }
+    } else {
         for (size_t i = 0; i < n; i++) {
             const double *row = w->Jfull + i * np;
-            double *out = J->data + i * J->tda, d = w->dfac[i], acc = 0.0;
+            double *out = J->data + i * J->tda, d = w->dfac[i];
             for (size_t j = 0; j < k; j++) {
-                double v = row[idx[j]] * d * w->dpdt[j];
-                acc += v * 0.0; /* NaN when some v is Inf or NaN */
+                double v = cs_fit_impl_column(w, row, &w->fr[j]) * d * w->dpdt[j];
                 out[j] = v;
+                jc[j * ldc + i] = v;
             }
-            bad |= isnan(acc);
-        }
-        return bad ? GSL_EDOM : GSL_SUCCESS;
-    }
-    for (size_t i = 0; i < n; i++) {
-        const double *row = w->Jfull + i * np;
-        double *out = J->data + i * J->tda, d = w->dfac[i];
-        for (size_t j = 0; j < k; j++) {
-            double v = cs_fit_impl_column(w, row, &w->fr[j]) * d * w->dpdt[j];
-            bad |= !isfinite(v);
-            out[j] = v;
         }
     }
-    return bad ? GSL_EDOM : GSL_SUCCESS;
+    gram_cols(jc, n, ldc, k, w->jtj);
+    /* an Inf or NaN in column j makes (J^T J)_jj Inf or NaN; only then is the column scanned
+       (entries so large that their squares overflow are still finite) */
+    for (size_t j = 0; j < k; j++)
+        if (!isfinite(w->jtj[j * k + j]))
+            for (size_t i = 0; i < n; i++)
+                if (!isfinite(jc[j * ldc + i]))
+                    return GSL_EDOM;
+    w->jtj_of = J->data;
+    return GSL_SUCCESS;
 }
+
+/* ---------------------------------------------------------------- linear solver for GSL */
+
+/* The trust region's linear solver: (J^T J + mu D^2) v = -J^T f by GSL's modified Cholesky
+ * decomposition (gsl_linalg_mcholesky_*), as gsl_multifit_nlinear_solver_mcholesky solves it,
+ * but with J^T J taken from the Jacobian callback, which forms it while it writes J (one pass
+ * over the data instead of a second one through gsl_blas_dsyrk), and with -J^T f taken from the
+ * trust region's gradient g = J^T f whenever f is the current residual vector (GSL computes g
+ * right after each Jacobian; only the geodesic acceleration's right-hand side needs a product).
+ * Without the callback's matrix (another workspace's J) it forms J^T J itself. */
+typedef struct fit_chol {
+    gsl_matrix *jtj;    /* J^T J (lower triangle) */
+    gsl_matrix *work;   /* J^T J + mu D^2, then its factor */
+    gsl_vector *rhs;
+    gsl_vector *work3;  /* 3k: condition estimate */
+    gsl_permutation *perm;
+    double mu;          /* the damping of the factor in work; -1: none */
+} fit_chol;
+
+static void chol_free(void *vs)
+{
+    fit_chol *s = vs;
+    if (!s)
+        return;
+    gsl_matrix_free(s->jtj);
+    gsl_matrix_free(s->work);
+    gsl_vector_free(s->rhs);
+    gsl_vector_free(s->work3);
+    gsl_permutation_free(s->perm);
+    free(s);
+}
+
+static void *chol_alloc(const size_t n, const size_t k)
+{
+    (void)n;
+    fit_chol *s = calloc(1, sizeof *s);
+    if (!s)
+        return NULL;
+    s->jtj = gsl_matrix_alloc(k, k);
+    s->work = gsl_matrix_alloc(k, k);
+    s->rhs = gsl_vector_alloc(k);
+    s->work3 = gsl_vector_alloc(3 * k);
+    s->perm = gsl_permutation_alloc(k);
+    s->mu = -1.0;
+    if (!s->jtj || !s->work || !s->rhs || !s->work3 || !s->perm) {
+        chol_free(s);
+        return NULL;
+    }
+    return s;
+}
+
+static int chol_init(const void *vts, void *vs)
+{
+    const gsl_multifit_nlinear_trust_state *ts = vts;
+    fit_chol *s = vs;
+    const cs_fit_workspace *w = ts->fdf->f == cb_f ? ts->fdf->params : NULL;
+    const size_t k = s->jtj->size1;
+    if (w && w->jtj_of == ts->J->data && w->nfree == k) {
+        for (size_t r = 0; r < k; r++)
+            for (size_t c = 0; c <= r; c++)
+                gsl_matrix_set(s->jtj, r, c, w->jtj[r * k + c]);
+    } else {
+        gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, ts->J, 0.0, s->jtj);
+    }
+    s->mu = -1.0;
+    return GSL_SUCCESS;
+}
+
+/* Factor the lower triangle of jtj + mu D^2 into s->work. */
+static int chol_factor(fit_chol *s, double mu, const gsl_vector *diag)
+{
+    const size_t k = s->jtj->size1;
+    for (size_t r = 0; r < k; r++)
+        for (size_t c = 0; c <= r; c++)
+            gsl_matrix_set(s->work, r, c, gsl_matrix_get(s->jtj, r, c));
+    if (mu != 0.0)
+        for (size_t r = 0; r < k; r++) {
+            double d = gsl_vector_get(diag, r);
+            *gsl_matrix_ptr(s->work, r, r) += mu * d * d;
+        }
+    int st = gsl_linalg_mcholesky_decomp(s->work, s->perm, NULL);
+    s->mu = st == GSL_SUCCESS ? mu : -1.0;
+    return st;
+}
+
+static int chol_presolve(const double mu, const void *vts, void *vs)
+{
+    const gsl_multifit_nlinear_trust_state *ts = vts;
+    return chol_factor(vs, mu, ts->diag);
+}
+
+static int chol_solve(const gsl_vector *f, gsl_vector *x, const void *vts, void *vs)
+{
+    const gsl_multifit_nlinear_trust_state *ts = vts;
+    fit_chol *s = vs;
+    if (f == ts->f) {
+        /* -J^T f = -g, exactly as the product would give it */
+        for (size_t j = 0; j < x->size; j++)
+            gsl_vector_set(s->rhs, j, -gsl_vector_get(ts->g, j));
+    } else {
+        gsl_blas_dgemv(CblasTrans, -1.0, ts->J, f, 0.0, s->rhs);
+    }
+    return gsl_linalg_mcholesky_solve(s->work, s->perm, s->rhs, x);
+}
+
+static int chol_rcond(double *rcond, void *vs)
+{
+    fit_chol *s = vs;
+    if (s->mu != 0.0) {
+        int st = chol_factor(s, 0.0, NULL);
+        if (st != GSL_SUCCESS)
+            return st;
+    }
+    double rc;
+    int st = gsl_linalg_mcholesky_rcond(s->work, s->perm, &rc, s->work3);
+    if (st == GSL_SUCCESS)
+        *rcond = sqrt(rc);
+    return st;
+}
+
+/* More's scaling (J. J. More, Lecture Notes in Mathematics 630 (1978)): D_jj = the largest norm
+ * column j of the Jacobian has had in this solve (1 for a zero column), as
+ * gsl_multifit_nlinear_scale_more keeps it, with the norms summed in one pass over the rows
+ * instead of one strided gsl_blas_dnrm2 per column (the Jacobian's entries are of order one, so
+ * the plain sum of squares neither overflows nor underflows; a column where it did gets
+ * gsl_blas_dnrm2). */
+static int scale_update(const gsl_matrix *J, gsl_vector *diag)
+{
+    enum { MAXK = 64 };
+    const size_t n = J->size1, k = J->size2;
+    const cs_fit_workspace *w = solving;
+    double ss[MAXK];
+    if (w && w->jtj_of == J->data && w->nfree == k) {
+        /* the Jacobian callback has just formed J^T J for this J: its diagonal */
+        for (size_t j = 0; j < k; j++) {
+            double nr = sqrt(w->jtj[j * k + j]);
+            double *d = gsl_vector_ptr(diag, j);
+            *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
+        }
+        return GSL_SUCCESS;
+    }
+    if (k > MAXK) {
+        for (size_t j = 0; j < k; j++) {
+            gsl_vector_const_view c = gsl_matrix_const_column(J, j);
+            double nr = gsl_blas_dnrm2(&c.vector);
+            double *d = gsl_vector_ptr(diag, j);
+            *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
+        }
+        return GSL_SUCCESS;
+    }
+    for (size_t j = 0; j < k; j++)
+        ss[j] = 0.0;
+    for (size_t i = 0; i < n; i++) {
+        const double *row = J->data + i * J->tda;
+        for (size_t j = 0; j < k; j++)
+            ss[j] += row[j] * row[j];
+    }
+    for (size_t j = 0; j < k; j++) {
+        double nr = sqrt(ss[j]);
+        if (!(ss[j] >= 1e-280 && ss[j] <= 1e280)) {
+            gsl_vector_const_view c = gsl_matrix_const_column(J, j);
+            nr = gsl_blas_dnrm2(&c.vector);
+        }
+        double *d = gsl_vector_ptr(diag, j);
+        *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
+    }
+    return GSL_SUCCESS;
+}
+
+static int scale_init(const gsl_matrix *J, gsl_vector *diag)
+{
+    gsl_vector_set_zero(diag);
+    return scale_update(J, diag);
+}
+
+static const gsl_multifit_nlinear_scale fit_scale_more = {"collshift-more", scale_init, scale_update};
+
+static const gsl_multifit_nlinear_solver fit_solver_chol = {"collshift-mcholesky", chol_alloc, chol_init,
+                                                            chol_presolve, chol_solve, chol_rcond,
+                                                            chol_free};
 
 /* ---------------------------------------------------------------- the solver */
 
@@ -477,11 +769,24 @@ static int small_step(const cs_fit_workspace *w, const gsl_vector *x, const gsl_
     return 1;
 }
 
-/* f^T f. */
+/* f^T f, in four interleaved partial sums (a single pass without gsl_blas_dnrm2's division per
+ * element; the residuals are never near the overflow range: an invalid point has a norm of
+ * 1e100, whose square 1e200 is still finite). */
 static double sum_squares(const gsl_vector *f)
 {
-    double fn = gsl_blas_dnrm2(f);
-    return fn * fn;
+    const size_t n = f->size, st = f->stride;
+    const double *d = f->data;
+    double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        s0 += d[i * st] * d[i * st];
+        s1 += d[(i + 1) * st] * d[(i + 1) * st];
+        s2 += d[(i + 2) * st] * d[(i + 2) * st];
+        s3 += d[(i + 3) * st] * d[(i + 3) * st];
+    }
+    for (; i < n; i++)
+        s0 += d[i * st] * d[i * st];
+    return (s0 + s1) + (s2 + s3);
 }
 
 /* b = r a along one line (squared sine between them <= FIT_EXTRAP_SIN2, 0 < r <= RMAX)?
@@ -518,14 +823,24 @@ static int gauss_newton_final(cs_fit_workspace *w, double xtol, const gsl_vector
     const gsl_vector *f = gsl_multifit_nlinear_residual(gw);
     gsl_matrix_view A = gsl_matrix_view_array(w->gram, k, k);
     gsl_vector_view g = gsl_vector_view_array(w->colnorm, k), d = gsl_vector_view_array(w->nrm, k);
-    gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, J, 0.0, &A.matrix);
-    gsl_blas_dgemv(CblasTrans, -1.0, J, f, 0.0, &g.vector);
+    if (w->jtj_of == J->data) {
+        /* J^T J from the Jacobian callback, -J^T f from the solver's gradient (the same sums) */
+        const gsl_vector *gg = gw->g;
+        for (size_t r = 0; r < k; r++) {
+            for (size_t c = 0; c <= r; c++)
+                w->gram[r * k + c] = w->jtj[r * k + c];
+            w->colnorm[r] = -gsl_vector_get(gg, r);
+        }
+    } else {
+        gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, J, 0.0, &A.matrix);
+        gsl_blas_dgemv(CblasTrans, -1.0, J, f, 0.0, &g.vector);
+    }
     if (gsl_linalg_cholesky_decomp1(&A.matrix) != GSL_SUCCESS ||
         gsl_linalg_cholesky_solve(&A.matrix, &g.vector, &d.vector) != GSL_SUCCESS)
         return 0;
     if (small_step(w, gw->x, &d.vector, xtol))
         return 1;
-    double dec, fn = gsl_blas_dnrm2(f), cost = fn * fn;
+    double dec, cost = sum_squares(f);
     gsl_blas_ddot(&g.vector, &d.vector, &dec);
     double dof = w->n > k ? (double)(w->n - k) : 1.0;
     double thr = fmax(FIT_ROUNDING * DBL_EPSILON * cost, FIT_EDM_XTOL * xtol * cost / dof);
@@ -593,8 +908,10 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
     w->fdf.params = w;
     w->last_nan = 0;
     gsl_vector_view th0 = gsl_vector_view_array(w->theta, k);
+    solving = w;
     int s = gsl_multifit_nlinear_winit(&th0.vector, NULL, &w->fdf, w->gw);
     if (s != GSL_SUCCESS || w->last_nan) {
+        solving = NULL;
         o->status = CS_FIT_MODEL_NAN;
         o->stop = CS_FIT_STOP_MODEL_NAN;
         o->nfev = w->nfev;
@@ -670,6 +987,7 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
             break;
         }
     }
+    solving = NULL;
     const gsl_vector *x = gsl_multifit_nlinear_position(gw);
     for (size_t j = 0; j < k; j++)
         w->pwork[j] = gsl_vector_get(x, j);
@@ -688,8 +1006,7 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
     w->cache_ok = 0;
     w->p_evaluated = last;
     memcpy(p, w->p, np * sizeof *p);
-    double fn = gsl_blas_dnrm2(gsl_multifit_nlinear_residual(gw));
-    o->cost = fn * fn;
+    o->cost = sum_squares(gsl_multifit_nlinear_residual(gw));
     o->niter = iter;
     o->nfev = w->nfev;
     o->njev = w->njev;

@@ -23,6 +23,7 @@ typedef struct prof_jw {
     size_t np;
     size_t off[CS_PROFILE_MAX_PARAMS];
     unsigned char on[CS_PROFILE_MAX_PARAMS];
+    int contig;                         /* every column wanted, at offsets 0, 1, ..., np - 1 */
 } prof_jw;
 
 static inline void prof_jw_init(prof_jw *w, const cs_profile_jac *jac, size_t np)
@@ -30,10 +31,12 @@ static inline void prof_jw_init(prof_jw *w, const cs_profile_jac *jac, size_t np
     w->data = jac ? jac->data : NULL;
     w->row_stride = jac ? jac->row_stride : 0;
     w->np = np;
+    w->contig = 1;
     for (size_t k = 0; k < np; k++) {
         size_t c = (jac && jac->cols) ? jac->cols[k] : k;
         w->on[k] = (unsigned char)(c != CS_PROFILE_SKIP);
         w->off[k] = w->on[k] ? c * (jac ? jac->col_stride : 0) : 0;
+        w->contig &= w->on[k] && w->off[k] == k;
     }
 }
 
@@ -43,6 +46,11 @@ static inline void prof_jw_add(const prof_jw *w, size_t i, const double *d)
     if (!w->data)
         return;
     double *row = w->data + i * w->row_stride;
+    if (w->contig) { /* the model's own layout: one row of its Jacobian */
+        for (size_t k = 0; k < w->np; k++)
+            row[k] += d[k];
+        return;
+    }
     for (size_t k = 0; k < w->np; k++)
         if (w->on[k])
             row[w->off[k]] += d[k];
