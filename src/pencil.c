@@ -218,7 +218,7 @@ static int check_parameters(const cs_pencil_parameters *p, cs_error *err)
 
 /* Everything allocated by one estimate, freed together. */
 typedef struct work {
-    cplx *y, *Zc, *Zp, *Qr, *c, *vec, *tmp, *small;
+    cplx *y, *Zc, *Zp, *Qr, *c, *vec, *small;
     ritz rz;
     hankel h;
     cs_gate_workspace *own_ws;   /* made for this call when the caller gave none */
@@ -232,7 +232,6 @@ static void work_release(work *w)
     free(w->Qr);
     free(w->c);
     free(w->vec);
-    free(w->tmp);
     free(w->small);
     free(w->rz.theta);
     free(w->rz.S);
@@ -258,7 +257,7 @@ static int propagate(work *w, size_t M, const cplx *z, const cplx *Rv, const cpl
     double sig[CS_PENCIL_MAX_ORDER];
     for (size_t l = 0; l < M; l++) {
         sig[l] = sqrt(w->rz.theta[l]);
-        pencil_hankel_xh(h, S + l * n, w->Qr + l * m, w->tmp);
+        pencil_hankel_xh(h, S + l * n, w->Qr + l * m);
         for (size_t i = 0; i < m; i++)
             w->Qr[l * m + i] /= sig[l];
     }
@@ -431,11 +430,6 @@ int cs_pencil_estimate_ws(cs_gate_workspace *ws, const double *samples, size_t n
     if (status != CS_OK)
         goto fail;
     size_t nc = L + 1, nr = N - L;
-    w.tmp = malloc((nc + nr) * sizeof *w.tmp);
-    if (!w.tmp) {
-        status = CS_ENOMEM;
-        goto fail;
-    }
 
     /* leading singular values and vectors */
     order_ctl oc;

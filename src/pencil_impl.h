@@ -81,8 +81,8 @@ CS_PENCIL_INTERNAL int pencil_hankel_init(hankel *h, cs_gate_workspace *gws, cpl
                                           size_t L, cs_error *err);
 CS_PENCIL_INTERNAL void pencil_hankel_release(hankel *h);
 
-/* X^H v (length m) for v of length n; tmp holds n. */
-CS_PENCIL_INTERNAL void pencil_hankel_xh(hankel *h, const cplx *v, cplx *out, cplx *tmp);
+/* X^H v (length m) for v of length n. */
+CS_PENCIL_INTERNAL void pencil_hankel_xh(hankel *h, const cplx *v, cplx *out);
 
 /* Linear convolution c[t] = sum_j u[j] g[t - j] of u (n) and g (m), t < N. */
 CS_PENCIL_INTERNAL void pencil_hankel_conv(hankel *h, const cplx *u, const cplx *g, cplx *c);
