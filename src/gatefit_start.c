@@ -354,7 +354,7 @@ static int decay_frequencies(cs_gate_workspace *ws, const double *z, size_t L, d
     pp.max_samples = L < GF_PENCIL_MAX ? (L < 16 ? 16 : L) : GF_PENCIL_MAX;
     cs_pencil_result pr;
     cs_pencil_result_init(&pr);
-    int prc = cs_pencil_estimate(z, L, 1, dt, &pp, &pr, NULL);
+    int prc = cs_pencil_estimate_ws(ws, z, L, 1, dt, &pp, &pr, NULL);
     int ok = (prc == CS_OK || prc == CS_ENOCONV) && pr.order == nd;
     for (size_t q = 0; ok && q < nd; q++) {
         fd[q] = pr.comp[q].freq_hz;

@@ -25,11 +25,12 @@
  *    singular pairs are needed, so they are found as eigenpairs of the Gram matrix
  *    G = X X^H (X = Y^T, (L+1) x (L+1); eigenvalues sigma^2, eigenvectors = S) by a block Krylov
  *    (block Lanczos) iteration with full reorthogonalisation and Rayleigh-Ritz extraction. G is
- *    never formed: X v and X^H w are correlations of the record with v, done by FFT (GSL's
- *    mixed-radix FFT, length P >= N with factors 2, 3, 5; P >= N is enough because the wanted
- *    outputs never wrap around). A product costs O(N log N), the iteration O(N k (log N + k))
- *    for a basis of k vectors, and the memory is O(N k). Measured here (complex records, the
- *    default max_order 8 and a fixed order 1): N = 1000 in 9-17 ms and 2.4 ms, N = 4000 in
+ *    never formed: X v and X^H w are correlations of the record with v, done by FFT (FFTW,
+ *    length P >= N with factors 2, 3, 5, 7, plans from the gate workspace's cache; P >= N is
+ *    enough because the wanted outputs never wrap around). A product costs O(N log N), the
+ *    iteration O(N k (log N + k)) for a basis of k vectors, and the memory is O(N k). Measured
+ *    here (complex records, the default max_order 8 and a fixed order 1; with GSL's mixed-radix
+ *    FFT, which the FFTW transforms replaced): N = 1000 in 9-17 ms and 2.4 ms, N = 4000 in
  *    45-65 ms and 10 ms, instead of seconds to minutes. The Rayleigh-Ritz problems (k x k
  *    Hermitian, k <= a few hundred) are solved with GSL: gsl_linalg_hermtd_decomp reduces them to
  *    real symmetric tridiagonal form, whose eigenvectors come from gsl_eigen_symmv (fast for
@@ -217,9 +218,10 @@ static int check_parameters(const cs_pencil_parameters *p, cs_error *err)
 
 /* Everything allocated by one estimate, freed together. */
 typedef struct work {
-    cplx *y, *Zc, *Zp, *Qr, *c, *vec, *tmp, *small;
+    cplx *y, *Zc, *Zp, *Qr, *c, *vec, *small;
     ritz rz;
     hankel h;
+    cs_gate_workspace *own_ws;   /* made for this call when the caller gave none */
 } work;
 
 static void work_release(work *w)
@@ -230,11 +232,11 @@ static void work_release(work *w)
     free(w->Qr);
     free(w->c);
     free(w->vec);
-    free(w->tmp);
     free(w->small);
     free(w->rz.theta);
     free(w->rz.S);
     pencil_hankel_release(&w->h);
+    cs_gate_free(w->own_ws);
 }
 
 /* First-order errors of every component (see the top of the file, item 4); comp[k] has the
@@ -255,7 +257,7 @@ static int propagate(work *w, size_t M, const cplx *z, const cplx *Rv, const cpl
     double sig[CS_PENCIL_MAX_ORDER];
     for (size_t l = 0; l < M; l++) {
         sig[l] = sqrt(w->rz.theta[l]);
-        pencil_hankel_xh(h, S + l * n, w->Qr + l * m, w->tmp);
+        pencil_hankel_xh(h, S + l * n, w->Qr + l * m);
         for (size_t i = 0; i < m; i++)
             w->Qr[l * m + i] /= sig[l];
     }
@@ -286,7 +288,7 @@ static int propagate(work *w, size_t M, const cplx *z, const cplx *Rv, const cpl
         }
         /* u = P_perp^T h is h itself: h^T S = pi^T (B - z_k A) = p_k^T (Phi - z_k I) = 0
            (normal equations, left eigenvector) */
-        pencil_hankel_conv(h, hk, g, w->c + k * N, w->tmp);
+        pencil_hankel_conv(h, hk, g, w->c + k * N);
     }
     for (size_t k = 0; k < M; k++) {
         /* pole: d ln z = sum_t (c_k[t] / z_k) e_t */
@@ -335,6 +337,13 @@ static int propagate(work *w, size_t M, const cplx *z, const cplx *Rv, const cpl
 
 int cs_pencil_estimate(const double *samples, size_t n, int is_complex, double dt_s,
                        const cs_pencil_parameters *p, cs_pencil_result *out, cs_error *err)
+{
+    return cs_pencil_estimate_ws(NULL, samples, n, is_complex, dt_s, p, out, err);
+}
+
+int cs_pencil_estimate_ws(cs_gate_workspace *ws, const double *samples, size_t n,
+                          int is_complex, double dt_s, const cs_pencil_parameters *p,
+                          cs_pencil_result *out, cs_error *err)
 {
     if (!out)
         return cs_error_set(err, CS_EINVAL, NULL, -1, -1, "pencil: no result to fill");
@@ -410,15 +419,17 @@ int cs_pencil_estimate(const double *samples, size_t n, int is_complex, double d
         status = cs_error_set(err, CS_EDATA, NULL, -1, -1, "pencil: the record is all zero");
         goto fail;
     }
-    status = pencil_hankel_init(&w.h, w.y, N, L);
+    if (!ws) {
+        ws = w.own_ws = cs_gate_alloc();
+        if (!ws) {
+            status = CS_ENOMEM;
+            goto fail;
+        }
+    }
+    status = pencil_hankel_init(&w.h, ws, w.y, N, L, err);
     if (status != CS_OK)
         goto fail;
     size_t nc = L + 1, nr = N - L;
-    w.tmp = malloc((w.h.P + nc + nr) * sizeof *w.tmp);
-    if (!w.tmp) {
-        status = CS_ENOMEM;
-        goto fail;
-    }
 
     /* leading singular values and vectors */
     order_ctl oc;

@@ -10,7 +10,9 @@
 #define GSL_COMPLEX_LEGACY 1
 #include <complex.h>
 #include <gsl/gsl_complex.h>
-#include <gsl/gsl_fft_complex.h>
+
+#include <collshift/gate.h>
+#include <fftw3.h>   /* after <complex.h>: fftw_complex is then double complex */
 
 #include <stddef.h>
 
@@ -43,10 +45,11 @@ static inline cplx from_gsl(gsl_complex g)
 typedef struct hankel {
     size_t N, n, m, P;       /* samples, columns of Y (L + 1), rows of Y (N - L), FFT length */
     cplx *y;                 /* N samples (owned by the caller of pencil_hankel_init) */
-    cplx *yhat;              /* FFT of y padded to P */
-    cplx *buf;               /* P scratch */
-    gsl_fft_complex_wavetable *wt;
-    gsl_fft_complex_workspace *ws;
+    cplx *yhat;              /* FFT of y padded to P (fftw_malloc) */
+    cplx *buf, *buf2;        /* P scratch each (fftw_malloc, so FFTW's alignment) */
+    fftw_plan fwd;           /* in-place forward transform of length P, owned by the gate
+                                workspace's plan cache (valid while it keeps it: the pencil makes
+                                no other plans on it meanwhile) */
 } hankel;
 
 /* What the order rule needs and produces. */
@@ -71,16 +74,18 @@ typedef struct ritz {
 } ritz;
 
 /* Prepare the products with the Hankel matrix of y (N samples, borrowed, kept by h) for the pencil
- * parameter L: the FFT of y padded to a 2^a 3^b 5^c length P >= N. CS_OK or CS_ENOMEM. */
-CS_PENCIL_INTERNAL int pencil_hankel_init(hankel *h, cplx *y, size_t N, size_t L);
+ * parameter L: the FFT of y padded to an FFTW-friendly length P >= N (cs_gate_fast_size,
+ * 2^a 3^b 5^c 7^d), with the forward plan of length P taken from (or made in) gws's plan cache.
+ * CS_OK, CS_ENOMEM, or as gate planning fails (CS_ERANGE, CS_EUNSUP; then *err says why). */
+CS_PENCIL_INTERNAL int pencil_hankel_init(hankel *h, cs_gate_workspace *gws, cplx *y, size_t N,
+                                          size_t L, cs_error *err);
 CS_PENCIL_INTERNAL void pencil_hankel_release(hankel *h);
 
-/* X^H v (length m) for v of length n; tmp holds n. */
-CS_PENCIL_INTERNAL void pencil_hankel_xh(hankel *h, const cplx *v, cplx *out, cplx *tmp);
+/* X^H v (length m) for v of length n. */
+CS_PENCIL_INTERNAL void pencil_hankel_xh(hankel *h, const cplx *v, cplx *out);
 
-/* Linear convolution c[t] = sum_j u[j] g[t - j] of u (n) and g (m), t < N; tmp holds P. */
-CS_PENCIL_INTERNAL void pencil_hankel_conv(hankel *h, const cplx *u, const cplx *g, cplx *c,
-                                           cplx *tmp);
+/* Linear convolution c[t] = sum_j u[j] g[t - j] of u (n) and g (m), t < N. */
+CS_PENCIL_INTERNAL void pencil_hankel_conv(hankel *h, const cplx *u, const cplx *g, cplx *c);
 
 /* The K leading eigenpairs of G = X X^H by block Krylov iteration, and the order they imply
  * (oc); out->theta and out->S are allocated here and freed by the caller. CS_OK, CS_ENOMEM or

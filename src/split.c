@@ -336,7 +336,7 @@ static int analyse_shot(const split_ctx *cx, const cs_record *rec, cs_record *co
        the tail era's gate-aware fit (which would otherwise run a pencil of its own on the same
        samples for its starting values) */
     if (p->pencil && !averaged) {
-        rc = cs_split_impl_pencil(rec, sh, err);
+        rc = cs_split_impl_pencil(cx->ws, rec, sh, err);
         if (rc != CS_OK)
             return rc;
     }

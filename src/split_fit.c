@@ -753,7 +753,7 @@ int cs_split_impl_whole(const split_ctx *cx, const cs_record *rec, cs_record *co
 }
 
 /* Matrix pencil of the tail gate's samples up to the fade of the envelope. */
-int cs_split_impl_pencil(const cs_record *rec, cs_split_shot *sh, cs_error *err)
+int cs_split_impl_pencil(cs_gate_workspace *ws, const cs_record *rec, cs_split_shot *sh, cs_error *err)
 {
     sh->npencil = 0;
     sh->pencil_order = 0;
@@ -790,7 +790,7 @@ int cs_split_impl_pencil(const cs_record *rec, cs_split_shot *sh, cs_error *err)
     cs_pencil_result_init(&pr);
     const double *x = rec->data + (rec->is_complex ? 2 * first : first);
     cs_error e2;
-    int rc = cs_pencil_estimate(x, count, rec->is_complex, rec->dt_s, &pp, &pr, &e2);
+    int rc = cs_pencil_estimate_ws(ws, x, count, rec->is_complex, rec->dt_s, &pp, &pr, &e2);
     if (rc == CS_ENOMEM) {
         if (err)
             *err = e2;

@@ -59,7 +59,8 @@ CS_SPLIT_INTERNAL int cs_split_impl_whole(const split_ctx *cx, const cs_record *
                                           cs_split_shot *sh, cs_error *err);
 /* The matrix pencil of sh's tail gate up to the envelope's fade; fills sh->pencil*. Returns CS_OK
  * (outcome in sh->pencil_status) or CS_ENOMEM. */
-CS_SPLIT_INTERNAL int cs_split_impl_pencil(const cs_record *rec, cs_split_shot *sh, cs_error *err);
+CS_SPLIT_INTERNAL int cs_split_impl_pencil(cs_gate_workspace *ws, const cs_record *rec,
+                                           cs_split_shot *sh, cs_error *err);
 /* Agreement of two measured lines (NaN z when either is not measured). */
 CS_SPLIT_INTERNAL void cs_split_impl_agree(const cs_split_line *a, const cs_split_line *b, double thr,
                                            cs_split_agree *g);

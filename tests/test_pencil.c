@@ -1,5 +1,6 @@
 /* Check suite for pencil: matrix-pencil estimates of damped exponentials and their errors. */
 #include <check.h>
+#include <collshift/gate.h>
 #include <collshift/pencil.h>
 
 #include <complex.h>
@@ -745,6 +746,51 @@ START_TEST(test_reuse)
 }
 END_TEST
 
+/* One gate workspace for many estimates (cs_pencil_estimate_ws): every exact case is still
+ * recovered to the analytic values (check_exact), the FFT plans of a length are made once and
+ * reused (a second pass over the same records makes no plan), and a record of a prime number of
+ * samples (its FFT length then has factors other than 2) is recovered too. */
+START_TEST(test_workspace)
+{
+    cs_gate_workspace *ws = cs_gate_alloc();
+    ck_assert_ptr_nonnull(ws);
+    size_t plans = 0;
+    for (int pass = 0; pass < 2; pass++) {
+        for (size_t k = 0; k < N_OF(exact_cases); k++) {
+            const struct exact_case *c = &exact_cases[k];
+            double *y = malloc(2 * c->n * sizeof *y);
+            synth(y, c->n, 1, c->dt, c->c, c->nc, 0.0, NULL);
+            cs_pencil_result r;
+            cs_pencil_result_init(&r);
+            cs_error err;
+            int st = cs_pencil_estimate_ws(ws, y, c->n, 1, c->dt, NULL, &r, &err);
+            ck_assert_msg(st == CS_OK, "%s: %s", c->what, err.msg);
+            check_exact(c, &r, (size_t)c->nc);
+            ck_assert(r.rms_residual < 1e-10);
+            cs_pencil_result_release(&r);
+            free(y);
+        }
+        if (pass == 0)
+            plans = cs_gate_plan_count(ws);
+    }
+    ck_assert_uint_gt(plans, 0);
+    ck_assert_uint_eq(cs_gate_plan_count(ws), plans);   /* second pass: plans reused */
+    /* 331 samples (prime): an FFT length of 331 or more with small factors, not a power of 2 */
+    const struct exact_case prime = {"331 samples", 331, 1e-6, 2,
+                                     {{12000.0, 800.0, 1.0, 0.3}, {-31000.0, 1500.0, 0.6, -1.1}}};
+    double *y = malloc(2 * prime.n * sizeof *y);
+    synth(y, prime.n, 1, prime.dt, prime.c, prime.nc, 0.0, NULL);
+    cs_pencil_result r;
+    cs_pencil_result_init(&r);
+    ck_assert_int_eq(cs_pencil_estimate_ws(ws, y, prime.n, 1, prime.dt, NULL, &r, NULL), CS_OK);
+    check_exact(&prime, &r, 2);
+    ck_assert_uint_eq(r.n_used, prime.n);
+    cs_pencil_result_release(&r);
+    free(y);
+    cs_gate_free(ws);
+}
+END_TEST
+
 START_TEST(test_defaults)
 {
     cs_pencil_parameters p = cs_pencil_default_parameters();
@@ -797,6 +843,7 @@ static Suite *pencil_suite(void)
     tcase_add_test(tc, test_errors);
     tcase_add_loop_test(tc, test_bad_parameters, 0, N_OF(bad_params));
     tcase_add_test(tc, test_reuse);
+    tcase_add_test(tc, test_workspace);
     tcase_add_test(tc, test_defaults);
     suite_add_tcase(s, tc);
     return s;

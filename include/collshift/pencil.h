@@ -34,9 +34,15 @@
  * above the noise: for a component near the noise floor the first-order picture, and so the
  * error, becomes unreliable. Numbers that cannot be computed are NaN and error_status says why.
  *
- * Thread safety: cs_pencil_estimate is reentrant (each call allocates its own workspace); it turns
- * GSL's abort-on-error handler off for the whole process, as every collshift module using GSL
- * does. */
+ * Transforms. The Hankel products and the error convolutions are FFTs of an FFTW-friendly length
+ * (2^a 3^b 5^c 7^d >= the samples used), run with FFTW plans from a gate workspace's plan cache
+ * (collshift/gate.h): cs_pencil_estimate_ws uses the caller's workspace, so a length met again
+ * reuses its plans; cs_pencil_estimate makes a workspace for the call and frees it.
+ *
+ * Thread safety: cs_pencil_estimate is reentrant (each call allocates its own workspace), and so
+ * is cs_pencil_estimate_ws with one gate workspace per thread (FFTW planning is serialised by
+ * the gate module's planner lock); both turn GSL's abort-on-error handler off for the whole
+ * process, as every collshift module using GSL does. */
 #ifndef CS_PENCIL_H
 #define CS_PENCIL_H
 
@@ -173,6 +179,14 @@ void cs_pencil_result_release(cs_pencil_result *r);
  * Except where said, *out is empty after a failure. *err (NULL-safe) gets the message. */
 int cs_pencil_estimate(const double *samples, size_t n, int is_complex, double dt_s,
                        const cs_pencil_parameters *p, cs_pencil_result *out, cs_error *err);
+
+struct cs_gate_workspace;
+/* cs_pencil_estimate with the FFT plans taken from (and left in) ws's plan cache
+ * (cs_gate_alloc; ws NULL: a workspace for this call only). Returns as cs_pencil_estimate, plus
+ * CS_EUNSUP when FFTW cannot plan a transform. */
+int cs_pencil_estimate_ws(struct cs_gate_workspace *ws, const double *samples, size_t n,
+                          int is_complex, double dt_s, const cs_pencil_parameters *p,
+                          cs_pencil_result *out, cs_error *err);
 
 /* The model of a result at the n sample times k * r->dt_s (k < n), written to out: interleaved
  * re, im when is_complex, else the real part only. Returns CS_OK, or CS_EINVAL for NULL r or out

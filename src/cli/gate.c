@@ -401,7 +401,8 @@ static int is_gate_aware(const char *list)
 
 /* Matrix-pencil estimate of the damped exponentials in a gate (time domain, no window): an
  * independent cross-check of the Fourier fits. Returns a JSON array of components. */
-static json_t *pencil_gate(const cs_record *rec, const cs_gate *g, const cs_burst *b, double lo_hz, int quiet)
+static json_t *pencil_gate(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g, const cs_burst *b,
+                           double lo_hz, int quiet)
 {
     json_t *a = json_array();
     size_t first, count;
@@ -421,7 +422,7 @@ static json_t *pencil_gate(const cs_record *rec, const cs_gate *g, const cs_burs
     cs_pencil_result pr;
     cs_pencil_result_init(&pr);
     const double *x = rec->data + (rec->is_complex ? 2 * first : first);
-    int rc = cs_pencil_estimate(x, count, rec->is_complex, rec->dt_s, &pp, &pr, &err);
+    int rc = cs_pencil_estimate_ws(ws, x, count, rec->is_complex, rec->dt_s, &pp, &pr, &err);
     if (rc == CS_OK || rc == CS_ENOCONV) {
         char b1[96], b2[96];
         size_t shown = 0;
@@ -645,7 +646,7 @@ static json_t *gate_file(cs_gate_workspace *ws, const char *path, const gate_opt
             json_object_set_new(o, "fit", is_gate_aware(go->fit)
                                               ? gatefit_gate(ws, rec, &gates[k], go->fit, lo_hz, go->quiet, worst)
                                               : fit_gated(go->fit, gs, go->quiet, worst));
-        json_object_set_new(o, "pencil", pencil_gate(rec, &gates[k], &burst, lo_hz, go->quiet));
+        json_object_set_new(o, "pencil", pencil_gate(ws, rec, &gates[k], &burst, lo_hz, go->quiet));
         json_array_append_new(jg, o);
         cs_gated_spectrum_free(gs);
     }
