@@ -65,10 +65,11 @@ static cs_model *start_model(void)
     return m;
 }
 
-static cs_fit_result *fit_bins(double width)
+/* The model from start_model() fitted to x, y, s (weights 1/s^2) with bins of `width` (0: point
+ * values), in workspace ws (NULL: its own); the fit must converge. */
+static cs_fit_result *fit_data(cs_fit_workspace *ws, const double *x, const double *y, const double *s,
+                               double width)
 {
-    static double x[NB], y[NB], s[NB];
-    binned_truth(x, y, s);
     cs_model *m = start_model();
     cs_fit_parameters par = cs_fit_default_parameters();
     par.weighting = CS_WEIGHT_SIGMA;
@@ -76,11 +77,19 @@ static cs_fit_result *fit_bins(double width)
     par.bin_width = width;
     cs_fit_result *r = NULL;
     cs_error err;
-    int rc = cs_fit_run(NULL, m, x, y, s, NULL, NB, &par, &r, &err);
+    int rc = cs_fit_run(ws, m, x, y, s, NULL, NB, &par, &r, &err);
     ck_assert_msg(rc == CS_OK && r, "fit failed: %s", err.msg);
     ck_assert_int_eq(r->status, CS_FIT_CONVERGED);
     cs_model_free(m);
     return r;
+}
+
+/* The noise-free binned truth fitted with bins of `width`. */
+static cs_fit_result *fit_bins(double width)
+{
+    static double x[NB], y[NB], s[NB];
+    binned_truth(x, y, s);
+    return fit_data(NULL, x, y, s, width);
 }
 
 /* The bins used: every parameter back to the truth. The quadrature's relative error at the narrow
@@ -150,19 +159,10 @@ START_TEST(test_bins_pulls)
             y[i] = y0[i] + gsl_ran_gaussian_ziggurat(rng, sd);
             s[i] = sd;
         }
-        cs_model *m = start_model();
-        cs_fit_parameters par = cs_fit_default_parameters();
-        par.weighting = CS_WEIGHT_SIGMA;
-        par.guess = 0;
-        par.bin_width = BIN;
-        cs_fit_result *r = NULL;
-        cs_error err;
-        int rc = cs_fit_run(ws, m, x, y, s, NULL, NB, &par, &r, &err);   /* one workspace reused */
-        ck_assert_msg(rc == CS_OK && r, "draw %d: %s", k, err.msg);
+        cs_fit_result *r = fit_data(ws, x, y, s, BIN);   /* one workspace reused */
         for (int q = 0; q < 3; q++)
             pulls[q][k] = (r->value[idx[q]] - truth[q]) / r->err[idx[q]];
         cs_fit_result_free(r);
-        cs_model_free(m);
     }
     for (int q = 0; q < 3; q++) {
         double mean = 0.0, var = 0.0;
