@@ -492,6 +492,16 @@ END_TEST
 /* The loader gives the values strtod gives (reference: C standard strtod), keeps reading an
  * underflowing value as 0 (as with strtod's ERANGE result before), and still refuses
  * overflow, hexadecimal, NaN and decimal commas with its messages. */
+/* Load `text` as a file called `name` with default options. */
+static int load_text(const char *name, const char *text, cs_loaded *out, cs_error *err)
+{
+    cs_load_options o;
+    cs_load_options_init(&o);
+    cs_loaded_init(out);
+    cs_error_clear(err);
+    return cs_io_text_load(tu_write_text(name, text), &o, out, err);
+}
+
 START_TEST(test_loader_values)
 {
     static const char *vals[] = {
@@ -503,13 +513,9 @@ START_TEST(test_loader_values)
     size_t len = 0;
     for (size_t i = 0; i < n; i++)
         len += (size_t)snprintf(text + len, sizeof text - len, "%zu,%s\n", i + 1, vals[i]);
-    cs_load_options o;
-    cs_load_options_init(&o);
     cs_loaded out;
     cs_error err;
-    cs_loaded_init(&out);
-    cs_error_clear(&err);
-    int rc = cs_io_text_load(tu_write_text("num.csv", text), &o, &out, &err);
+    int rc = load_text("num.csv", text, &out, &err);
     ck_assert_msg(rc == CS_OK, "load failed (%d): line %ld: %s", rc, err.line, err.msg);
     const double *y = NULL;
     size_t got = 0;
@@ -542,9 +548,7 @@ START_TEST(test_loader_values)
     };
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         snprintf(text, sizeof text, "1,1\n2,%s\n3,3\n4,4\n", bad[i].field);
-        cs_loaded_init(&out);
-        cs_error_clear(&err);
-        rc = cs_io_text_load(tu_write_text("bad.csv", text), &o, &out, &err);
+        rc = load_text("bad.csv", text, &out, &err);
         ck_assert_msg(rc != CS_OK, "'%s' accepted", bad[i].field);
         ck_assert_msg(strstr(err.msg, bad[i].msg), "'%s': message '%s' lacks '%s'", bad[i].field,
                       err.msg, bad[i].msg);
@@ -593,13 +597,9 @@ START_TEST(test_loader_random)
             text[len++] = '\n';
             text[len] = '\0';
         }
-        cs_load_options o;
-        cs_load_options_init(&o);
         cs_loaded out;
         cs_error err;
-        cs_loaded_init(&out);
-        cs_error_clear(&err);
-        int rc = cs_io_text_load(tu_write_text("random.csv", text), &o, &out, &err);
+        int rc = load_text("random.csv", text, &out, &err);
         ck_assert_msg(rc == CS_OK, "delimiter '%c': load failed (%d): line %ld: %s", d, rc,
                       err.line, err.msg);
         ck_assert_int_eq(out.kind, CS_KIND_RECORD);
@@ -675,13 +675,9 @@ START_TEST(test_loader_malformed)
                 len += (size_t)snprintf(text + len, sizeof text - len, "%zu%c %s %c%s\n", r, d,
                                         f2, d, f3);
             }
-            cs_load_options o;
-            cs_load_options_init(&o);
             cs_loaded out;
             cs_error err;
-            cs_loaded_init(&out);
-            cs_error_clear(&err);
-            int rc = cs_io_text_load(tu_write_text("malformed.csv", text), &o, &out, &err);
+            int rc = load_text("malformed.csv", text, &out, &err);
             snprintf(want, sizeof want, bad[i].fmt, badcol, bad[i].field);
             ck_assert_msg(rc == bad[i].code, "'%s': code %d, expected %d (%s)", bad[i].field, rc,
                           bad[i].code, err.msg);
