@@ -693,7 +693,8 @@ static int chol_rcond(double *rcond, void *vs)
     return st;
 }
 
-/* More's scaling (J. J. More, Lecture Notes in Mathematics 630 (1978)): D_jj = the largest norm
+/* More's scaling (J. J. More, "The Levenberg-Marquardt algorithm: implementation and theory",
+ * Numerical Analysis, Springer LNM 630, 105-116 (1978)): D_jj = the largest norm
  * column j of the Jacobian has had in this solve (1 for a zero column), as
  * gsl_multifit_nlinear_scale_more keeps it, with the norms summed in one pass over the rows
  * instead of one strided gsl_blas_dnrm2 per column (the Jacobian's entries are of order one, so
