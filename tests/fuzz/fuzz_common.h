@@ -86,8 +86,9 @@ static inline void fuzz_assert_load(int rc, const cs_loaded *l, const cs_error *
     }
 }
 
-/* Load `path` with options `o` and check the result's contract (fuzz_assert_load). */
-static inline void fuzz_load_and_check(const char *path, const cs_load_options *o)
+/* Load `path` with options `o` and check the result's contract (fuzz_assert_load); returns the
+ * loader's code (CS_OK or a negative code), for the harness's own assertion. */
+static inline int fuzz_load_and_check(const char *path, const cs_load_options *o)
 {
     cs_loaded l;
     cs_loaded_init(&l);
@@ -96,6 +97,7 @@ static inline void fuzz_load_and_check(const char *path, const cs_load_options *
     int rc = cs_io_load(path, o, &l, &err);
     fuzz_assert_load(rc, &l, &err, o->min_points);
     cs_loaded_release(&l);
+    return rc;
 }
 #endif
 
