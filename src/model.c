@@ -799,10 +799,14 @@ int cs_model_eval_jac(const cs_model *m, const double *p, const double *x, size_
     const size_t np = m->nparams, bf = m->base_first, nb = np - bf;
     const double *c = p + bf;
     const double xr = m->x_ref;
-    for (size_t i = 0; i < n; i++) {
-        double *row = J + i * ldj;
-        for (size_t k = 0; k < np; k++)
-            row[k] = 0.0;
+    if (ldj == np) { /* the profiles add into J: one pass of zeros (not one call per row) */
+        memset(J, 0, n * np * sizeof *J);
+    } else {
+        for (size_t i = 0; i < n; i++) {
+            double *row = J + i * ldj;
+            for (size_t k = 0; k < np; k++)
+                row[k] = 0.0;
+        }
     }
 
     if (m->mode == CS_MODEL_SUM) {
