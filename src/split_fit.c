@@ -382,9 +382,9 @@ static double narrowest_width(const cs_model *m, const cs_fit_result *r)
 /* The passes of plain_fit_bins on the nx points x, y (bins, or blocks of K bins whose variance
  * factor is gK): the equal-weight pass, then weighted passes. Leaves the fit in f->pfit (or
  * NULL) and returns the last cs_fit_run code; e2 holds its message. */
-static int plain_passes(cs_fit_workspace *fw, const cs_gated_spectrum *gs, cs_split_fit *f, const double *x,
-                        const double *y, size_t nx, size_t K, double gK, double *pv, double *sig, double *base,
-                        cs_error *e2)
+static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spectrum *gs, cs_split_fit *f,
+                        const double *x, const double *y, size_t nx, size_t K, double gK, double *pv, double *sig,
+                        double *base, cs_error *e2)
 {
     cs_fit_parameters par = cs_fit_default_parameters();
     /* the block is the mean of K samples df apart: the two nodes +-(width/2)/sqrt(3) match its
@@ -418,12 +418,20 @@ static int plain_passes(cs_fit_workspace *fw, const cs_gated_spectrum *gs, cs_sp
     par.weighting = CS_WEIGHT_SIGMA;
     for (int pass = 0; pass < SPLIT_PASSES; pass++) {
         cs_model_get_values(f->pmodel, pv);
-        cs_model_eval(f->pmodel, pv, x, nx, sig, NULL);
-        for (size_t k = 0; k < f->pmodel->ncomp; k++) {   /* the floor alone: every area 0 */
-            const cs_model_component *mc = &f->pmodel->comp[k];
-            pv[mc->first + mc->type->nparams - 1] = 0.0;
+        int erc = cs_model_eval(f->pmodel, pv, x, nx, sig, NULL);
+        if (erc == CS_OK && bmod) {   /* the floor alone: the baseline's own model (bmod) */
+            bmod->x_ref = f->pmodel->x_ref;
+            cs_model_eval(bmod, pv + f->pmodel->base_first, x, nx, base, NULL);
+        } else if (erc == CS_OK && f->pmodel->baseline == CS_BASELINE_NONE) {
+            for (size_t i = 0; i < nx; i++)
+                base[i] = 0.0;
+        } else {   /* the same floor as the model with every area 0 (NaN where the model is) */
+            for (size_t k = 0; k < f->pmodel->ncomp; k++) {
+                const cs_model_component *mc = &f->pmodel->comp[k];
+                pv[mc->first + mc->type->nparams - 1] = 0.0;
+            }
+            cs_model_eval(f->pmodel, pv, x, nx, base, NULL);
         }
-        cs_model_eval(f->pmodel, pv, x, nx, base, NULL);
         double top = 0.0, floor_mid = base[nx / 2];
         for (size_t i = 0; i < nx; i++)
             top = fmax(top, fabs(sig[i]));
@@ -488,9 +496,16 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
     K = K < 1 ? 1 : K;
     double *pv = malloc(np * sizeof *pv), *sig = malloc(n * sizeof *sig), *base = malloc(n * sizeof *base);
     double *bx = K > 1 ? malloc(n * sizeof *bx) : NULL;   /* 2 (n / K) <= n for every K >= 2 */
-    /* one fit workspace for every pass (it grows when a refit goes to shorter blocks) */
+    /* one fit workspace for every pass (it grows when a refit goes to shorter blocks), and the
+       baseline as a model of its own for the floor of the weights (plain_passes): the same
+       values as the whole model with every area 0, without evaluating the profiles */
     cs_fit_workspace *fw = cs_fit_alloc((K > 1 ? n / K : n), np);
-    int rc = !pv || !sig || !base || (K > 1 && !bx) || !fw ? CS_ENOMEM : CS_OK;
+    cs_model *bmod = NULL;
+    if (f->pmodel->baseline != CS_BASELINE_NONE && f->pmodel->mode == CS_MODEL_SUM)
+        bmod = cs_model_alloc("none", f->pmodel->baseline, CS_MODEL_SUM, &e2);
+    int rc = !pv || !sig || !base || (K > 1 && !bx) || !fw ||
+                     (f->pmodel->baseline != CS_BASELINE_NONE && f->pmodel->mode == CS_MODEL_SUM && !bmod)
+                 ? CS_ENOMEM : CS_OK;
     double ginf = NAN;
     if (rc == CS_OK)
         rc = cs_gate_block_variance(&gs->gate.window, gs->gate.periodic, gs->m, gs->nfft, 1, NULL, &ginf);
@@ -511,7 +526,7 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
         f->block = K;
         f->fmax_hz = fx[nx * K - 1];   /* the last bin fitted */
         f->err_scale = sqrt(fmax(ginf / gK, 1.0));
-        rc = plain_passes(fw, gs, f, x, y, nx, K, gK, pv, sig, base, &e2);
+        rc = plain_passes(fw, bmod, gs, f, x, y, nx, K, gK, pv, sig, base, &e2);
         if ((rc != CS_OK && rc != CS_ENOCONV) || K == 1 || Kset)
             break;
         double wmin = f->pfit ? narrowest_width(f->pmodel, f->pfit) : NAN;
@@ -522,6 +537,7 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
         K = K2 > 1 ? K2 : 1;
     }
     cs_fit_free(fw);
+    cs_model_free(bmod);
     free(pv);
     free(base);
     free(sig);
