@@ -179,14 +179,13 @@ static double vnorm(const cplx *v, size_t n)
 }
 
 /* Remove from v its components along the k orthonormal columns of Q (n each): modified
- * Gram-Schmidt, twice, which keeps the basis orthogonal to rounding ("twice is enough").
- * Returns the final norm. */
-static double orthogonalise(const cplx *Q, size_t n, size_t k, cplx *v)
+ * Gram-Schmidt, `passes` times (see orthogonalise). */
+static void gram_schmidt(const cplx *Q, size_t n, size_t k, cplx *v, int passes)
 {
     /* the complex products written out in real arithmetic, in the order C evaluates them
        (ac - bd, ad + bc), which gives the same bits without the compiler's NaN recovery */
     double *vv = (double *)v;
-    for (int pass = 0; pass < 2; pass++)
+    for (int pass = 0; pass < passes; pass++)
         for (size_t c = 0; c < k; c++) {
             const double *q = (const double *)(Q + c * n);
             double dr = 0.0, di = 0.0;
@@ -201,6 +200,13 @@ static double orthogonalise(const cplx *Q, size_t n, size_t k, cplx *v)
                 vv[2 * i + 1] -= dr * qi + di * qr;
             }
         }
+}
+
+/* Modified Gram-Schmidt twice, which keeps the basis orthogonal to rounding ("twice is
+ * enough"). Returns the final norm. */
+static double orthogonalise(const cplx *Q, size_t n, size_t k, cplx *v)
+{
+    gram_schmidt(Q, n, k, v, 2);
     return vnorm(v, n);
 }
 
@@ -414,10 +420,25 @@ int pencil_subspace(hankel *h, size_t K, const order_ctl *oc, ritz *out)
            the last block (up to rounding, eps ||T||). When a G q_j was left out (dependent, or
            the basis full) that no longer holds and the residuals are formed from G s. */
         for (size_t c = last0; c < k; c++) {
+            /* classical Gram-Schmidt with the coefficients just computed (T's column c is
+               Q^H w_c), then a modified Gram-Schmidt pass: orthogonal to rounding as with two
+               modified passes ("twice is enough" holds for both), one pass of products fewer */
             cplx *rc = R + (c - last0) * n;
-            memcpy(rc, W + c * n, n * sizeof *rc);
+            double *rd = (double *)rc;
+            const double *wd = (const double *)(W + c * n);
+            for (size_t i = 0; i < 2 * n; i++)
+                rd[i] = wd[i];
             Rn0[c - last0] = vnorm(rc, n);
-            orthogonalise(Q, n, k, rc);
+            for (size_t a = 0; a < k; a++) {
+                const double *qa = (const double *)(Q + a * n);
+                double dr = creal(T[a * kmax + c]), di = cimag(T[a * kmax + c]);
+                for (size_t i = 0; i < n; i++) {
+                    double qr = qa[2 * i], qi = qa[2 * i + 1];
+                    rd[2 * i] -= dr * qr - di * qi;
+                    rd[2 * i + 1] -= dr * qi + di * qr;
+                }
+            }
+            gram_schmidt(Q, n, k, rc, 1);
         }
         if (added > 0 && k < K + 1 && k < n)
             continue;
