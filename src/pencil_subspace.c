@@ -283,9 +283,12 @@ static int rayleigh_ritz(const cplx *T, size_t ld, size_t k, size_t K, double *t
     for (size_t c = 0; c < K; c++) {
         theta[c] = gsl_vector_get(ev, c);
         for (size_t i = 0; i < k; i++) {
+            /* sum_j U[i][j] V[j][c] read from the matrices' own storage (the same values as
+               gsl_matrix_complex_get and gsl_matrix_get, without a call per element) */
+            const double *ui = U->data + 2 * i * U->tda;
             cplx s = 0;
             for (size_t j = 0; j < k; j++)
-                s += from_gsl(gsl_matrix_complex_get(U, i, j)) * gsl_matrix_get(V, j, c);
+                s += (ui[2 * j] + I * ui[2 * j + 1]) * V->data[j * V->tda + c];
             C[c * k + i] = s;
         }
     }
@@ -396,11 +399,20 @@ int pencil_subspace(hankel *h, size_t K, const order_ctl *oc, ritz *out)
         }
         if (from < last1)
             explicit_res = 1;   /* G q of the previous block not taken (the basis is full) */
+        /* T is block tridiagonal: for q_a two or more blocks before q_c, q_a^H G q_c =
+           (G q_a)^H q_c, and G q_a lies in the basis up to the block after q_a's (its part
+           outside became that block), to which q_c is orthogonal; those entries are rounding
+           and are set to 0 (standard block Lanczos; the reorthogonalisation below still runs
+           over the whole basis). Not when a G q_a was left out of the basis (explicit_res). */
+        size_t a0 = explicit_res ? 0 : last0;
         last0 = k - added;
         last1 = k;
+        for (size_t c = last0; c < k; c++)
+            for (size_t a = 0; a < a0; a++)
+                T[a * kmax + c] = T[c * kmax + a] = 0;
         /* new columns of T = Q^H W */
         for (size_t c = last0; c < k; c++)
-            for (size_t a = 0; a < k; a++) {
+            for (size_t a = a0; a < k; a++) {
                 /* conj(qa) . wc in real arithmetic (the same bits, see orthogonalise) */
                 const double *qa = (const double *)(Q + a * n), *wc = (const double *)(W + c * n);
                 double sr = 0.0, si = 0.0;
@@ -429,7 +441,7 @@ int pencil_subspace(hankel *h, size_t K, const order_ctl *oc, ritz *out)
             for (size_t i = 0; i < 2 * n; i++)
                 rd[i] = wd[i];
             Rn0[c - last0] = vnorm(rc, n);
-            for (size_t a = 0; a < k; a++) {
+            for (size_t a = a0; a < k; a++) {   /* T[a][c] = 0 below a0 */
                 const double *qa = (const double *)(Q + a * n);
                 double dr = creal(T[a * kmax + c]), di = cimag(T[a * kmax + c]);
                 for (size_t i = 0; i < n; i++) {
