@@ -65,7 +65,7 @@ typedef struct order_ctl {
 typedef struct ritz {
     size_t K;              /* eigenpairs computed */
     double *theta;         /* K eigenvalues, descending */
-    cplx *S;               /* n x K eigenvectors, vector i at S + i n */
+    cplx *S;               /* n x K: the M eigenvectors used, vector i at S + i n (the others 0) */
     size_t M;              /* the order chosen from theta */
     double floor;          /* noise floor (singular-value units) */
     size_t dim;            /* final basis size */

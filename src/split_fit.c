@@ -49,6 +49,8 @@
 
 #include <collshift/profile.h>
 
+#include <gsl/gsl_statistics_double.h>
+
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -251,12 +253,6 @@ static int gatefit_era(const split_ctx *cx, const cs_record *rec, cs_split_era e
 #define BLOCK_MIN_BINS 4096
 #define BLOCK_PER_FWHM 12.0
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
 /* The band of bins [*i0, *i0 + *nb) of a PSD that holds its lines (see the comment at the top):
  * block means of w bins, their median as the floor and 1.4826 x their median absolute deviation
  * as the noise unit; the blocks more than BAND_NSIGMA noise units above the floor span the
@@ -286,13 +282,13 @@ static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb)
             sum += s->y[i];
         bm[b] = sum / (double)w;
     }
+    /* the element of rank nblk / 2 (the upper median), selected without a full sort
+       (gsl_stats_select: quickselect, reorders tmp) */
     memcpy(tmp, bm, nblk * sizeof *tmp);
-    qsort(tmp, nblk, sizeof *tmp, cmp_double);
-    double floor_med = tmp[nblk / 2];
+    double floor_med = gsl_stats_select(tmp, 1, nblk, nblk / 2);
     for (size_t b = 0; b < nblk; b++)
         tmp[b] = fabs(bm[b] - floor_med);
-    qsort(tmp, nblk, sizeof *tmp, cmp_double);
-    double unit = 1.4826 * tmp[nblk / 2];
+    double unit = 1.4826 * gsl_stats_select(tmp, 1, nblk, nblk / 2);
     free(tmp);
     size_t lo = nblk, hi = 0;
     if (floor_med > 0 && unit > 0 && isfinite(floor_med) && isfinite(unit)) {
@@ -386,8 +382,9 @@ static double narrowest_width(const cs_model *m, const cs_fit_result *r)
 /* The passes of plain_fit_bins on the nx points x, y (bins, or blocks of K bins whose variance
  * factor is gK): the equal-weight pass, then weighted passes. Leaves the fit in f->pfit (or
  * NULL) and returns the last cs_fit_run code; e2 holds its message. */
-static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const double *x, const double *y, size_t nx,
-                        size_t K, double gK, double *pv, double *sig, double *base, cs_error *e2)
+static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spectrum *gs, cs_split_fit *f,
+                        const double *x, const double *y, size_t nx, size_t K, double gK, double *pv, double *sig,
+                        double *base, cs_error *e2)
 {
     cs_fit_parameters par = cs_fit_default_parameters();
     /* the block is the mean of K samples df apart: the two nodes +-(width/2)/sqrt(3) match its
@@ -399,7 +396,7 @@ static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const doub
        crawl along a valley of a periodogram, whose scatter grows with the level, until the
        iteration limit), the weighted passes go on from where it stopped */
     cs_fit_result *r1 = NULL;
-    int rc = cs_fit_run(NULL, f->pmodel, x, y, NULL, NULL, nx, &par, &r1, e2);
+    int rc = cs_fit_run(fw, f->pmodel, x, y, NULL, NULL, nx, &par, &r1, e2);
     if (r1 && rc == CS_ENOCONV && r1->status == CS_FIT_NOT_CONVERGED)
         rc = CS_OK;
     if (!r1 || rc != CS_OK) {
@@ -421,12 +418,20 @@ static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const doub
     par.weighting = CS_WEIGHT_SIGMA;
     for (int pass = 0; pass < SPLIT_PASSES; pass++) {
         cs_model_get_values(f->pmodel, pv);
-        cs_model_eval(f->pmodel, pv, x, nx, sig, NULL);
-        for (size_t k = 0; k < f->pmodel->ncomp; k++) {   /* the floor alone: every area 0 */
-            const cs_model_component *mc = &f->pmodel->comp[k];
-            pv[mc->first + mc->type->nparams - 1] = 0.0;
+        int erc = cs_model_eval(f->pmodel, pv, x, nx, sig, NULL);
+        if (erc == CS_OK && bmod) {   /* the floor alone: the baseline's own model (bmod) */
+            bmod->x_ref = f->pmodel->x_ref;
+            cs_model_eval(bmod, pv + f->pmodel->base_first, x, nx, base, NULL);
+        } else if (erc == CS_OK && f->pmodel->baseline == CS_BASELINE_NONE) {
+            for (size_t i = 0; i < nx; i++)
+                base[i] = 0.0;
+        } else {   /* the same floor as the model with every area 0 (NaN where the model is) */
+            for (size_t k = 0; k < f->pmodel->ncomp; k++) {
+                const cs_model_component *mc = &f->pmodel->comp[k];
+                pv[mc->first + mc->type->nparams - 1] = 0.0;
+            }
+            cs_model_eval(f->pmodel, pv, x, nx, base, NULL);
         }
-        cs_model_eval(f->pmodel, pv, x, nx, base, NULL);
         double top = 0.0, floor_mid = base[nx / 2];
         for (size_t i = 0; i < nx; i++)
             top = fmax(top, fabs(sig[i]));
@@ -439,14 +444,14 @@ static int plain_passes(const cs_gated_spectrum *gs, cs_split_fit *f, const doub
             sig[i] = fmax(sqrt(v / kshots), 1e-6 * top);
         }
         cs_fit_result *next = NULL;
-        rc = cs_fit_run(NULL, f->pmodel, x, y, sig, NULL, nx, &par, &next, e2);
+        rc = cs_fit_run(fw, f->pmodel, x, y, sig, NULL, nx, &par, &next, e2);
         if (!f->pfit && next && rc == CS_ENOCONV && next->stop == CS_FIT_STOP_NO_PROGRESS) {
             /* the trust region stalled next to the equal-weight optimum: once more from the
                automatic starting values under the same weights */
             cs_fit_result_free(next);
             next = NULL;
             par.guess = 1;
-            rc = cs_fit_run(NULL, f->pmodel, x, y, sig, NULL, nx, &par, &next, e2);
+            rc = cs_fit_run(fw, f->pmodel, x, y, sig, NULL, nx, &par, &next, e2);
             par.guess = 0;
         }
         if (f->pfit && (!next || rc != CS_OK)) {
@@ -491,7 +496,16 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
     K = K < 1 ? 1 : K;
     double *pv = malloc(np * sizeof *pv), *sig = malloc(n * sizeof *sig), *base = malloc(n * sizeof *base);
     double *bx = K > 1 ? malloc(n * sizeof *bx) : NULL;   /* 2 (n / K) <= n for every K >= 2 */
-    int rc = !pv || !sig || !base || (K > 1 && !bx) ? CS_ENOMEM : CS_OK;
+    /* one fit workspace for every pass (it grows when a refit goes to shorter blocks), and the
+       baseline as a model of its own for the floor of the weights (plain_passes): the same
+       values as the whole model with every area 0, without evaluating the profiles */
+    cs_fit_workspace *fw = cs_fit_alloc((K > 1 ? n / K : n), np);
+    cs_model *bmod = NULL;
+    if (f->pmodel->baseline != CS_BASELINE_NONE && f->pmodel->mode == CS_MODEL_SUM)
+        bmod = cs_model_alloc("none", f->pmodel->baseline, CS_MODEL_SUM, &e2);
+    int rc = !pv || !sig || !base || (K > 1 && !bx) || !fw ||
+                     (f->pmodel->baseline != CS_BASELINE_NONE && f->pmodel->mode == CS_MODEL_SUM && !bmod)
+                 ? CS_ENOMEM : CS_OK;
     double ginf = NAN;
     if (rc == CS_OK)
         rc = cs_gate_block_variance(&gs->gate.window, gs->gate.periodic, gs->m, gs->nfft, 1, NULL, &ginf);
@@ -512,7 +526,7 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
         f->block = K;
         f->fmax_hz = fx[nx * K - 1];   /* the last bin fitted */
         f->err_scale = sqrt(fmax(ginf / gK, 1.0));
-        rc = plain_passes(gs, f, x, y, nx, K, gK, pv, sig, base, &e2);
+        rc = plain_passes(fw, bmod, gs, f, x, y, nx, K, gK, pv, sig, base, &e2);
         if ((rc != CS_OK && rc != CS_ENOCONV) || K == 1 || Kset)
             break;
         double wmin = f->pfit ? narrowest_width(f->pmodel, f->pfit) : NAN;
@@ -522,6 +536,8 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
             break;
         K = K2 > 1 ? K2 : 1;
     }
+    cs_fit_free(fw);
+    cs_model_free(bmod);
     free(pv);
     free(base);
     free(sig);
