@@ -34,7 +34,8 @@
  * two-point Gauss-Legendre matched to the mean of K samples) so that no block width biases a
  * line, and every block at most 1/12 of the narrowest line: of the era fits' lines before the
  * fit, of the fitted lines after it (a fit with a narrower line, or one that does not converge,
- * is repeated with blocks short enough, single bins in the end). The weights follow the block
+ * is repeated with blocks short enough, at most 4 times shorter per refit, single bins in the
+ * end). The weights follow the block
  * mean's variance: a bin's variance times g(K)/K, where g(K) sums the correlation of
  * neighbouring bins of the padded, windowed transform (cs_gate_block_variance; exact where the
  * floor dominates a block, within ~20 % next to a strong line), and the errors are scaled by
@@ -252,6 +253,7 @@ static int gatefit_era(const split_ctx *cx, const cs_record *rec, cs_split_era e
 #define BLOCK_TARGET 1024
 #define BLOCK_MIN_BINS 4096
 #define BLOCK_PER_FWHM 12.0
+#define BLOCK_STEP 4   /* a refit's blocks are at most this many times shorter */
 
 /* The band of bins [*i0, *i0 + *nb) of a PSD that holds its lines (see the comment at the top):
  * block means of w bins, their median as the floor and 1.4826 x their median absolute deviation
@@ -474,7 +476,7 @@ static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spe
  * whole-record band, fitted as means of blocks of bins (see the comment at the top): about
  * BLOCK_TARGET blocks, none longer than 1/BLOCK_PER_FWHM of hint_hz; when a fitted line comes
  * out narrower than BLOCK_PER_FWHM blocks, or the fit does not converge, again with blocks short
- * enough (single bins at the end). */
+ * enough, at most BLOCK_STEP times shorter per refit (single bins at the end). */
 static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
                           const double *fy, size_t n, int blocks, double hint_hz, cs_split_fit *f, cs_error *err)
 {
@@ -534,6 +536,10 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
                                                ? (size_t)(wmin / (BLOCK_PER_FWHM * gs->df_hz)) : K;
         if (K2 >= K)
             break;
+        /* at most BLOCK_STEP times shorter blocks per refit: a component that collapsed (a
+           width of a few Hz and an area consistent with 0) or a fit that strayed at K is often
+           fine at K / 4, which costs a quarter of single bins */
+        K2 = K2 > K / BLOCK_STEP ? K2 : K / BLOCK_STEP;
         K = K2 > 1 ? K2 : 1;
     }
     cs_fit_free(fw);
