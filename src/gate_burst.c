@@ -441,6 +441,32 @@ static double raw_noise_var_tau(const double *y, size_t first, size_t count, dou
     return c0 / (double)(count - 1) * tau;
 }
 
+/* raw_noise_var_tau over the envelope's quiet region, with the autocorrelation sum tau that
+ * cs_envelope_compute left in env->noise_tau (the same region, samples and floor tau_min, so
+ * the same bits) instead of its 16 lagged products again: only the variance is summed. An
+ * envelope whose noise_tau is below the floor or not finite (not made by cs_envelope_compute)
+ * gets the full computation. */
+static double quiet_var_tau(const cs_envelope *env)
+{
+    const double tau_min = env->from_real ? 2.0 : 1.0;
+    const size_t count = env->quiet_count;
+    if (!(env->noise_tau >= tau_min) || !isfinite(env->noise_tau)) {
+        double tau;
+        return raw_noise_var_tau(env->intensity, env->quiet_first, count, tau_min, &tau);
+    }
+    const double *x = env->intensity + env->quiet_first;
+    double mean = 0.0;
+    for (size_t j = 0; j < count; j++)
+        mean += x[j];
+    mean /= (double)count;
+    double c0 = 0.0;
+    for (size_t j = 0; j < count; j++)
+        c0 += (x[j] - mean) * (x[j] - mean);
+    if (!(c0 > 0))
+        return 0.0;
+    return c0 / (double)(count - 1) * env->noise_tau;
+}
+
 /* Noise floor of a smoothing s (half-width h) of the intensity over the quiet region: the
  * median of s, and the larger of 1.4826 MAD(s) and the model estimate above, whose var x tau
  * part (raw_noise_var_tau of the raw intensity over the same region: the same for every
@@ -743,9 +769,8 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
             return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
         }
         s2 = lz.pass[2];
-        double want = p->smooth_ratio * fwhm, tau_unused;
-        double var_tau = raw_noise_var_tau(env->intensity, env->quiet_first, env->quiet_count,
-                                           env->from_real ? 2.0 : 1.0, &tau_unused);
+        double want = p->smooth_ratio * fwhm;
+        double var_tau = quiet_var_tau(env);
         for (int it = 0; it < 4; it++) {
             double real = lazy_start(&lz, want);
             lazy_range(&lz, env->quiet_first, env->quiet_first + env->quiet_count);

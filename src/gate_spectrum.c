@@ -201,9 +201,11 @@ void cs_gate_freq_axis(size_t nfft, double dt_s, int is_complex, double lo_hz, d
         return;
     double df = 1.0 / ((double)nfft * dt_s);
     size_t nfq = cs_gate_nfreq(nfft, is_complex);
-    double k0 = is_complex ? -(double)(nfft / 2) : 0.0;
-    for (size_t k = 0; k < nfq; k++)
-        freq_hz[k] = lo_hz + (k0 + (double)k) * df;
+    /* k0 + k counted in a double (integers, exact: the same values as k0 + (double)k without
+       a conversion from size_t per bin) */
+    double kk = is_complex ? -(double)(nfft / 2) : 0.0;
+    for (size_t k = 0; k < nfq; k++, kk += 1.0)
+        freq_hz[k] = lo_hz + kk * df;
 }
 
 static int check_record(const cs_record *rec, cs_error *err)

@@ -109,6 +109,94 @@ int cs_gatefit_impl_theta(const gf_fit *F, const double *u, gf_theta *th)
     return ok;
 }
 
+/* cs_gatefit_impl_evaluate for the commonest fit, one decay (the tail's, over the longest gates),
+ * with the same operations in the same order as the general loop below (the same bits): the
+ * recurrence of gf_basis_next kept in registers, the complex products written out in real
+ * arithmetic (C's complex product checks every result for NaN), no loop over components, the
+ * time s = j dt from j counted in a double. th: the natural parameters at u (ok: finite). */
+static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *res, gsl_matrix *J)
+{
+    const gf_problem *P = &F->P;
+    const double is = 1.0 / F->s_fit;
+    const double ph = -2.0 * PI_ * th->f[0] * F->sref[0];
+    const double complex rot = cos(ph) + I * sin(ph);
+    const double rtr = creal(rot), rti = cimag(rot);
+    gf_basis_it it;
+    cs_gatefit_impl_basis_init(&it, CS_GATEFIT_DECAY, th->f[0], th->rate[0], th->tp[0], P->dt);
+    const double qr = creal(it.q), qi = cimag(it.q);
+    const double cr = creal(th->c[0]), ci = cimag(th->c[0]);
+    const double c0 = 2.0 * PI_ * F->sf[0], sref = F->sref[0], rate = th->rate[0], aref = F->a_ref;
+    const double dt = P->dt;
+    const size_t tda = J ? J->tda : 0, rstride = res ? res->stride : 0;
+    double *rd = res ? res->data : NULL;
+    const double *x = P->x;
+    const int cplx = P->cplx;
+    double er = 0.0, ei = 0.0, sd = 0.0;   /* the basis at the last sample, its index as a double */
+    size_t jl = 0, left = 0;
+    int started = 0;
+    for (size_t i = 0; ok && i < P->nact; i++) {
+        size_t j = P->idx[i];
+        if (started && j == jl + 1 && left > 0) {
+            double nr = er * qr - ei * qi, ni = er * qi + ei * qr;   /* E *= q */
+            er = nr;
+            ei = ni;
+            left--;
+            sd += 1.0;
+        } else {
+            cs_gatefit_impl_basis_anchor(&it, j);
+            er = creal(it.E);
+            ei = cimag(it.E);
+            left = it.left;
+            started = 1;
+            sd = (double)j;
+        }
+        jl = j;
+        const double s = sd * dt;
+        const double vr = cr * er - ci * ei, vi = cr * ei + ci * er;   /* v = c E */
+        const double Mr = 0.0 + vr, Mi = 0.0 + vi;
+        if (J) {
+            double *Jr = J->data + (cplx ? 2 * i : i) * tda;
+            const double Err = rtr * er - rti * ei, Eri = rtr * ei + rti * er;   /* rot E */
+            const double jr = aref * Err * is, ji = aref * Eri * is;
+            const double a0 = c0 * (s - sref) * is;
+            const double a1 = -0.5 * s * rate * is;
+            Jr[0] = -a0 * vi;
+            Jr[1] = a1 * vr;
+            Jr[2] = jr;
+            Jr[3] = -ji;
+            if (cplx) {
+                double *Ji = Jr + tda;
+                Ji[0] = a0 * vr;
+                Ji[1] = a1 * vi;
+                Ji[2] = ji;
+                Ji[3] = jr;
+            }
+        }
+        if (cplx) {
+            double rr = (Mr - x[2 * j]) * is, ri = (Mi - x[2 * j + 1]) * is;
+            if (!isfinite(rr) || !isfinite(ri))
+                ok = 0;
+            if (rd) {
+                rd[2 * i * rstride] = rr;
+                rd[(2 * i + 1) * rstride] = ri;
+            }
+        } else {
+            double rr = (Mr - x[j]) * is;
+            if (!isfinite(rr))
+                ok = 0;
+            if (rd)
+                rd[i * rstride] = rr;
+        }
+    }
+    if (!ok) {
+        if (res)
+            gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
+        if (J)
+            gsl_matrix_set_zero(J);
+    }
+    return ok;
+}
+
 /* Residuals (res, nres values; may be NULL) and Jacobian (J, nres x np; may be NULL) at u.
  * Returns 1 when everything is finite. The basis comes from gf_basis_next (no exp or sincos
  * per sample) and J is written through its row pointers. */
@@ -117,6 +205,8 @@ int cs_gatefit_impl_evaluate(gf_fit *F, const double *u, gsl_vector *res, gsl_ma
     const gf_problem *P = &F->P;
     gf_theta th;
     int ok = cs_gatefit_impl_theta(F, u, &th);
+    if (P->ncomp == 1 && P->kind[0] == CS_GATEFIT_DECAY)
+        return evaluate_decay1(F, &th, ok, res, J);
     const double is = 1.0 / F->s_fit;
     double complex rot[CS_GATEFIT_MAX_COMP];
     gf_basis_it it[CS_GATEFIT_MAX_COMP];
