@@ -73,6 +73,7 @@
 #include <fftw3.h>
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -429,11 +430,42 @@ static double raw_noise_var_tau(const double *y, size_t first, size_t count, dou
         return 0.0;
     double tau = 1.0;
     size_t L = count / 4 < 16 ? count / 4 : 16;
-    for (size_t m = 1; m <= L; m++) {
-        double c = 0.0;
-        for (size_t j = 0; j + m < count; j++)
-            c += (x[j] - mean) * (x[j + m] - mean);
-        tau += 2.0 * c / c0;
+    double *d = malloc(count * sizeof *d);
+    if (!d) {
+        for (size_t m = 1; m <= L; m++) {
+            double c = 0.0;
+            for (size_t j = 0; j + m < count; j++)
+                c += (x[j] - mean) * (x[j + m] - mean);
+            tau += 2.0 * c / c0;
+        }
+    } else {
+        /* the same products and sums, from the centred values, lags m and m + 1 side by side
+           in the two lanes of a vector (each lane summed over j in order: the same bits) */
+        for (size_t j = 0; j < count; j++)
+            d[j] = x[j] - mean;
+        size_t m = 1;
+#if defined(__GNUC__)
+        typedef double v2 __attribute__((vector_size(16)));
+        for (; m + 1 <= L; m += 2) {
+            v2 c = {0.0, 0.0};
+            size_t j = 0;
+            for (; j + m + 1 < count; j++) {
+                v2 a = {d[j], d[j]}, b;
+                memcpy(&b, d + j + m, sizeof b);
+                c += a * b;
+            }
+            double c_m = c[0] + d[j] * d[j + m];   /* lag m's last product, j + m = count - 1 */
+            tau += 2.0 * c_m / c0;
+            tau += 2.0 * c[1] / c0;
+        }
+#endif
+        for (; m <= L; m++) {
+            double c = 0.0;
+            for (size_t j = 0; j + m < count; j++)
+                c += d[j] * d[j + m];
+            tau += 2.0 * c / c0;
+        }
+        free(d);
     }
     if (tau < tau_min)
         tau = tau_min;
@@ -585,17 +617,25 @@ int cs_envelope_compute(cs_gate_workspace *ws, const cs_record *rec,
         goto fail;
     }
     size_t nd = rec->is_complex ? 2 * n : n;
-    for (size_t j = 0; j < nd; j++)
-        if (!isfinite(rec->data[j])) {
-            rc = cs_error_set(err, CS_EDATA, rec->source, -1, -1, "sample %zu is not finite",
-                              rec->is_complex ? j / 2 : j);
-            goto fail;
-        }
-    if (rec->is_complex) {
+    /* complex records: the finite check rides on the intensity (non-finite when a part is, or
+       when a huge part overflows its square); only then are the samples scanned */
+    double acc = 0.0;
+    if (rec->is_complex)
         for (size_t j = 0; j < n; j++) {
             double re = rec->data[2 * j], im = rec->data[2 * j + 1];
-            e->intensity[j] = re * re + im * im;
+            double v = re * re + im * im;
+            e->intensity[j] = v;
+            acc += v * 0.0;   /* stays 0 unless some v is Inf or NaN */
         }
+    if (!rec->is_complex || acc != 0.0 || isnan(acc))
+        for (size_t j = 0; j < nd; j++)
+            if (!isfinite(rec->data[j])) {
+                rc = cs_error_set(err, CS_EDATA, rec->source, -1, -1, "sample %zu is not finite",
+                                  rec->is_complex ? j / 2 : j);
+                goto fail;
+            }
+    if (rec->is_complex) {
+        /* the intensity is in place */
     } else {
         size_t N = cs_gate_fast_size(n);
         double *buf = N ? fftw_malloc(2 * N * sizeof(double)) : NULL;
@@ -696,10 +736,10 @@ struct shape {
 };
 
 static int measure(const double *s, size_t n, size_t lo, size_t hi, double fl, struct shape *sh,
-                   lazy_smooth *lz)
+                   lazy_smooth *lz, size_t ip_known)
 {
     lazy_range(lz, lo > 0 ? lo - 1 : 0, hi + 1);
-    size_t ip = argmax(s, lo, hi);
+    size_t ip = ip_known < n ? ip_known : argmax(s, lo, hi);
     double dp = 0.0, peak = s[ip];
     if (ip > 0 && ip + 1 < n) {
         double ym = s[ip - 1], y0 = s[ip], yp = s[ip + 1], den = ym - 2 * y0 + yp;
@@ -747,7 +787,7 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
         return CS_OK;
     }
     struct shape sh;
-    if (!measure(env->smooth, n, 0, n, env->floor, &sh, NULL)) {
+    if (!measure(env->smooth, n, 0, n, env->floor, &sh, NULL, ip0)) {   /* ip0: argmax over 0..n */
         burst_none(out, snr, env->floor, env->floor_sigma);
         return CS_OK;
     }
@@ -779,7 +819,7 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
             double lo = sh.rise - fwhm_meas, hi = sh.fall + fwhm_meas + 1;
             size_t a = lo > 0 ? (size_t)lo : 0, b = hi < (double)n ? (size_t)hi : n;
             struct shape s2h;
-            if (!measure(s2, n, a, b > a ? b : n, fl, &s2h, &lz))
+            if (!measure(s2, n, a, b > a ? b : n, fl, &s2h, &lz, SIZE_MAX))
                 break;
             sh = s2h;
             s = s2;
