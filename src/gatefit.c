@@ -330,6 +330,25 @@ static size_t first_nonfinite(const double *x, size_t m, int cplx, const double 
                               int *allzero)
 {
     if (!w) {
+        /* x * 0 summed stays 0 unless some x is Inf or NaN: one multiply-add per value (two per
+           vector operation), the scan for the first bad sample only when it is not */
+        size_t nv = cplx ? 2 * m : m, i = 0;
+        double acc = 0.0;
+#if defined(__GNUC__)
+        typedef double v2 __attribute__((vector_size(16)));
+        v2 a2 = {0.0, 0.0};
+        const v2 z2 = {0.0, 0.0};
+        for (; i + 2 <= nv; i += 2) {
+            v2 v;
+            memcpy(&v, x + i, sizeof v);
+            a2 += v * z2;
+        }
+        acc = a2[0] + a2[1];
+#endif
+        for (; i < nv; i++)
+            acc += x[i] * 0.0;
+        if (acc == 0.0)
+            return m;
         if (cplx) {
             for (size_t j = 0; j < m; j++)
                 if (!isfinite(x[2 * j]) || !isfinite(x[2 * j + 1]))

@@ -42,7 +42,14 @@
  * nearly degenerate (two decays for one line), and there the Cholesky solver's path ended at a
  * different point with a singular covariance. Undetermined directions are found by the
  * covariance's pivoted QR (below). A point where the model is not finite (e^{u1}
- * overflowing) gets huge residuals, so the trust region rejects it. Convergence: an accepted
+ * overflowing) gets huge residuals, so the trust region rejects it. J^T J is formed once per
+ * Jacobian, by the Jacobian callback right after it wrote J (one pass over the rows, each entry
+ * summed in gsl_blas_dsyrk's order); the one-component solver (gf_solver_chol, GSL's modified
+ * Cholesky as in gsl_multifit_nlinear_solver_cholesky), the More scaling (gf_scale_more: column
+ * norms from its diagonal) and the Gauss-Newton test below take it from there, and -J^T f is
+ * the trust region's own gradient g, instead of a gsl_blas_dsyrk per iteration, a gsl_blas_dgemv
+ * per trial step and a strided gsl_blas_dnrm2 per column (GSL lets a caller supply the solver
+ * and the scaling; the pattern of src/fit_solve.c). Convergence: an accepted
  * step with |du_j| <= xtol (1 + |u_j|) for every j; or GSL's gradient test (gtol). Near the
  * minimum of a noisy gate the damped steps shrink only linearly (by ~30 per iteration in the
  * tests), and with thousands of residuals the cost stops changing visibly (rounding of a sum of
@@ -60,7 +67,10 @@
  * gsl_multifit_nlinear_covar forms (J^T J)^-1 by QR with column pivoting, dropping columns with
  * |R_kk| <= 1e-10 |R_11|; a dropped column (GSL returns a zero row) marks its variable
  * undetermined (status SINGULAR, NaN errors for every reported parameter that depends on it; the
- * others keep theirs). Times sigma^2 / s^2 it is the covariance of u, and the reported covariance
+ * others keep theirs). When the equilibrated J^T J (k x k) shows that no column can be dropped
+ * (small_covariance: smallest singular value provably above 1e-4) its Cholesky inverse is taken
+ * instead; both give the same matrix to rounding, and the QR of the whole Jacobian was most of
+ * the covariance's cost. Times sigma^2 / s^2 it is the covariance of u, and the reported covariance
  * is G C G^T with G = d(reported)/du (block diagonal: center, Gamma or tau, t_peak depend on one
  * variable each; the amplitude A = |c_r| on the two amplitude variables, dA = (cr dcr + ci dci)/A,
  * and the phase phi = arg(c_r) - 2 pi (f - lo) s_r on those and u0,
