@@ -120,10 +120,12 @@ int cs_gatefit_impl_theta(const gf_fit *F, const double *u, gf_theta *th)
 }
 
 /* cs_gatefit_impl_evaluate for the commonest fit, one decay (the tail's, over the longest gates),
- * with the same operations in the same order as the general loop below (the same bits): the
- * recurrence of gf_basis_next kept in registers, the complex products written out in real
- * arithmetic (C's complex product checks every result for NaN), no loop over components, the
- * time s = j dt from j counted in a double. th: the natural parameters at u (ok: finite). */
+ * with the same operations in the same order as the general loop below (the same values, up to
+ * the sign of a residual that is exactly 0): the recurrence of gf_basis_next kept in registers,
+ * the complex products written out in real arithmetic (C's complex product checks every result
+ * for NaN), no loop over components, the time s = j dt from j counted in a double, and the
+ * residuals' finite test as one sum of r * 0 (Inf or NaN make it NaN) checked at the end. th:
+ * the natural parameters at u (ok: finite). */
 static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *res, gsl_matrix *J)
 {
     const gf_problem *P = &F->P;
@@ -142,6 +144,7 @@ static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *re
     const double *x = P->x;
     const int cplx = P->cplx;
     double er = 0.0, ei = 0.0, sd = 0.0;   /* the basis at the last sample, its index as a double */
+    double bad = 0.0;
     size_t jl = 0, left = 0;
     int started = 0;
     for (size_t i = 0; ok && i < P->nact; i++) {
@@ -162,8 +165,7 @@ static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *re
         }
         jl = j;
         const double s = sd * dt;
-        const double vr = cr * er - ci * ei, vi = cr * ei + ci * er;   /* v = c E */
-        const double Mr = 0.0 + vr, Mi = 0.0 + vi;
+        const double vr = cr * er - ci * ei, vi = cr * ei + ci * er;   /* v = c E, the model */
         if (J) {
             double *Jr = J->data + (cplx ? 2 * i : i) * tda;
             const double Err = rtr * er - rti * ei, Eri = rtr * ei + rti * er;   /* rot E */
@@ -182,22 +184,24 @@ static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *re
                 Ji[3] = jr;
             }
         }
+        /* residuals; bad stays 0 unless one is Inf or NaN (then the whole evaluation is
+           replaced by the penalty below, as the general loop's early stop leads to) */
         if (cplx) {
-            double rr = (Mr - x[2 * j]) * is, ri = (Mi - x[2 * j + 1]) * is;
-            if (!isfinite(rr) || !isfinite(ri))
-                ok = 0;
+            double rr = (vr - x[2 * j]) * is, ri = (vi - x[2 * j + 1]) * is;
+            bad += rr * 0.0 + ri * 0.0;
             if (rd) {
                 rd[2 * i * rstride] = rr;
                 rd[(2 * i + 1) * rstride] = ri;
             }
         } else {
-            double rr = (Mr - x[j]) * is;
-            if (!isfinite(rr))
-                ok = 0;
+            double rr = (vr - x[j]) * is;
+            bad += rr * 0.0;
             if (rd)
                 rd[i * rstride] = rr;
         }
     }
+    if (bad != 0.0 || isnan(bad))
+        ok = 0;
     if (!ok) {
         if (res)
             gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
