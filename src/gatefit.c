@@ -531,14 +531,24 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for a gate of %zu samples", m);
         goto done;
     }
-    rc = cs_window_fill(&g->window, m, g->periodic ? CS_WINDOW_PERIODIC : CS_WINDOW_SYMMETRIC, w);
-    if (rc != CS_OK) {
-        rc = cs_error_set(err, CS_EINVAL, NULL, -1, -1, "gate '%s': invalid window", g->name);
-        goto done;
-    }
+    /* a rectangular window uses every sample (no window to sample and test) */
+    const int all_used = g->window.type == &cs_window_rect;
     size_t nused = 0;
     int allzero = 1;
-    first_nonfinite(x, m, cplx, w, idx, &nused, &allzero);
+    if (all_used) {
+        for (size_t j = 0; j < m; j++)
+            idx[j] = j;
+        nused = m;
+        for (size_t i = 0; i < (cplx ? 2 * m : m) && allzero; i++)
+            allzero = x[i] == 0;
+    } else {
+        rc = cs_window_fill(&g->window, m, g->periodic ? CS_WINDOW_PERIODIC : CS_WINDOW_SYMMETRIC, w);
+        if (rc != CS_OK) {
+            rc = cs_error_set(err, CS_EINVAL, NULL, -1, -1, "gate '%s': invalid window", g->name);
+            goto done;
+        }
+        first_nonfinite(x, m, cplx, w, idx, &nused, &allzero);
+    }
     F.P.cplx = cplx;
     F.P.x = x;
     F.P.m = m;
@@ -548,7 +558,10 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
     F.P.nused = nused;
     F.P.nact = nused;
     ss_after[nused] = 0.0;
-    if (cplx) {
+    if (cplx && nused == m) {   /* every sample used: idx[i] = i */
+        for (size_t i = nused; i-- > 0;)
+            ss_after[i] = ss_after[i + 1] + (x[2 * i] * x[2 * i] + x[2 * i + 1] * x[2 * i + 1]);
+    } else if (cplx) {
         for (size_t i = nused; i-- > 0;) {
             size_t j = idx[i];
             ss_after[i] = ss_after[i + 1] + (x[2 * j] * x[2 * j] + x[2 * j + 1] * x[2 * j + 1]);
