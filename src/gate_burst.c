@@ -73,6 +73,8 @@
 #include <fftw3.h>
 
 #include <math.h>
+#include <stddef.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -114,6 +116,14 @@ static void box_block(const double *y, size_t n, size_t h, double *out, size_t j
         out[j] = s / (double)(hi - lo);
     }
     if (j < b) {
+        for (; j + 1 < b; j += 2) {   /* two samples per pass: the same operations, half the loop */
+            s += y[j + h];
+            s -= y[j - h - 1];
+            out[j] = s / width;
+            s += y[j + h + 1];
+            s -= y[j - h];
+            out[j + 1] = s / width;
+        }
         for (; j < b; j++) {
             s += y[j + h];
             s -= y[j - h - 1];
@@ -381,10 +391,57 @@ static double select_kth(double *v, size_t n, size_t k)
     return v[k];
 }
 
+/* The k-th smallest of v[lo..hi] (reordered so that v[lo..k) <= v[k] <= v(k..hi]), for long
+ * arrays by Floyd and Rivest's selection (R. W. Floyd and R. L. Rivest, "Algorithm 489: The
+ * algorithm SELECT - for finding the ith smallest of n elements", Commun. ACM 18, 173 (1975)):
+ * the k-th of a sample of about n^(2/3) elements, found first, gives two pivots that bracket
+ * rank k closely, so one partition of the whole array leaves only a small part to search
+ * (about n + min(k, n - k) comparisons against the 2-3 n of select_kth). The value is the same
+ * as select_kth's: the k-th smallest is unique. */
+static double select_fr(double *v, ptrdiff_t lo, ptrdiff_t hi, ptrdiff_t k)
+{
+    while (hi > lo) {
+        if (hi - lo > 600) {
+            double n = (double)(hi - lo + 1), i = (double)(k - lo + 1), z = log(n);
+            double s = 0.5 * exp(2.0 * z / 3.0), sd = 0.5 * sqrt(z * s * (n - s) / n);
+            if (i < n / 2)
+                sd = -sd;
+            ptrdiff_t nl = (ptrdiff_t)((double)k - i * s / n + sd), nh = (ptrdiff_t)((double)k + (n - i) * s / n + sd);
+            select_fr(v, nl > lo ? nl : lo, nh < hi ? nh : hi, k);
+        }
+        double t = v[k], tmp;
+        ptrdiff_t i = lo, j = hi;
+        tmp = v[lo], v[lo] = v[k], v[k] = tmp;
+        if (v[hi] > t)
+            tmp = v[hi], v[hi] = v[lo], v[lo] = tmp;
+        while (i < j) {
+            tmp = v[i], v[i] = v[j], v[j] = tmp;
+            i++;
+            j--;
+            while (v[i] < t)
+                i++;
+            while (v[j] > t)
+                j--;
+        }
+        if (v[lo] == t) {
+            tmp = v[lo], v[lo] = v[j], v[j] = tmp;
+        } else {
+            j++;
+            tmp = v[j], v[j] = v[hi], v[hi] = tmp;
+        }
+        if (j <= k)
+            lo = j + 1;
+        if (k <= j)
+            hi = j - 1;
+    }
+    return v[k];
+}
+
 /* Median of v[0..n) (reordered), n >= 1. */
 static double median_inplace(double *v, size_t n)
 {
-    double hi = select_kth(v, n, n / 2);
+    double hi = n > 1024 && n < (size_t)PTRDIFF_MAX ? select_fr(v, 0, (ptrdiff_t)n - 1, (ptrdiff_t)(n / 2))
+                                                  : select_kth(v, n, n / 2);
     if (n % 2)
         return hi;
     double lo = v[0];   /* largest of the lower part v[0 .. n/2) */
@@ -429,16 +486,73 @@ static double raw_noise_var_tau(const double *y, size_t first, size_t count, dou
         return 0.0;
     double tau = 1.0;
     size_t L = count / 4 < 16 ? count / 4 : 16;
-    for (size_t m = 1; m <= L; m++) {
-        double c = 0.0;
-        for (size_t j = 0; j + m < count; j++)
-            c += (x[j] - mean) * (x[j + m] - mean);
-        tau += 2.0 * c / c0;
+    double *d = malloc(count * sizeof *d);
+    if (!d) {
+        for (size_t m = 1; m <= L; m++) {
+            double c = 0.0;
+            for (size_t j = 0; j + m < count; j++)
+                c += (x[j] - mean) * (x[j + m] - mean);
+            tau += 2.0 * c / c0;
+        }
+    } else {
+        /* the same products and sums, from the centred values, lags m and m + 1 side by side
+           in the two lanes of a vector (each lane summed over j in order: the same bits) */
+        for (size_t j = 0; j < count; j++)
+            d[j] = x[j] - mean;
+        size_t m = 1;
+#if defined(__GNUC__)
+        typedef double v2 __attribute__((vector_size(16)));
+        for (; m + 1 <= L; m += 2) {
+            v2 c = {0.0, 0.0};
+            size_t j = 0;
+            for (; j + m + 1 < count; j++) {
+                v2 a = {d[j], d[j]}, b;
+                memcpy(&b, d + j + m, sizeof b);
+                c += a * b;
+            }
+            double c_m = c[0] + d[j] * d[j + m];   /* lag m's last product, j + m = count - 1 */
+            tau += 2.0 * c_m / c0;
+            tau += 2.0 * c[1] / c0;
+        }
+#endif
+        for (; m <= L; m++) {
+            double c = 0.0;
+            for (size_t j = 0; j + m < count; j++)
+                c += d[j] * d[j + m];
+            tau += 2.0 * c / c0;
+        }
+        free(d);
     }
     if (tau < tau_min)
         tau = tau_min;
     *tau_out = tau;
     return c0 / (double)(count - 1) * tau;
+}
+
+/* raw_noise_var_tau over the envelope's quiet region, with the autocorrelation sum tau that
+ * cs_envelope_compute left in env->noise_tau (the same region, samples and floor tau_min, so
+ * the same bits) instead of its 16 lagged products again: only the variance is summed. An
+ * envelope whose noise_tau is below the floor or not finite (not made by cs_envelope_compute)
+ * gets the full computation. */
+static double quiet_var_tau(const cs_envelope *env)
+{
+    const double tau_min = env->from_real ? 2.0 : 1.0;
+    const size_t count = env->quiet_count;
+    if (!(env->noise_tau >= tau_min) || !isfinite(env->noise_tau)) {
+        double tau;
+        return raw_noise_var_tau(env->intensity, env->quiet_first, count, tau_min, &tau);
+    }
+    const double *x = env->intensity + env->quiet_first;
+    double mean = 0.0;
+    for (size_t j = 0; j < count; j++)
+        mean += x[j];
+    mean /= (double)count;
+    double c0 = 0.0;
+    for (size_t j = 0; j < count; j++)
+        c0 += (x[j] - mean) * (x[j] - mean);
+    if (!(c0 > 0))
+        return 0.0;
+    return c0 / (double)(count - 1) * env->noise_tau;
 }
 
 /* Noise floor of a smoothing s (half-width h) of the intensity over the quiet region: the
@@ -559,17 +673,25 @@ int cs_envelope_compute(cs_gate_workspace *ws, const cs_record *rec,
         goto fail;
     }
     size_t nd = rec->is_complex ? 2 * n : n;
-    for (size_t j = 0; j < nd; j++)
-        if (!isfinite(rec->data[j])) {
-            rc = cs_error_set(err, CS_EDATA, rec->source, -1, -1, "sample %zu is not finite",
-                              rec->is_complex ? j / 2 : j);
-            goto fail;
-        }
-    if (rec->is_complex) {
+    /* complex records: the finite check rides on the intensity (non-finite when a part is, or
+       when a huge part overflows its square); only then are the samples scanned */
+    double acc = 0.0;
+    if (rec->is_complex)
         for (size_t j = 0; j < n; j++) {
             double re = rec->data[2 * j], im = rec->data[2 * j + 1];
-            e->intensity[j] = re * re + im * im;
+            double v = re * re + im * im;
+            e->intensity[j] = v;
+            acc += v * 0.0;   /* stays 0 unless some v is Inf or NaN */
         }
+    if (!rec->is_complex || acc != 0.0 || isnan(acc))
+        for (size_t j = 0; j < nd; j++)
+            if (!isfinite(rec->data[j])) {
+                rc = cs_error_set(err, CS_EDATA, rec->source, -1, -1, "sample %zu is not finite",
+                                  rec->is_complex ? j / 2 : j);
+                goto fail;
+            }
+    if (rec->is_complex) {
+        /* the intensity is in place */
     } else {
         size_t N = cs_gate_fast_size(n);
         double *buf = N ? fftw_malloc(2 * N * sizeof(double)) : NULL;
@@ -670,10 +792,10 @@ struct shape {
 };
 
 static int measure(const double *s, size_t n, size_t lo, size_t hi, double fl, struct shape *sh,
-                   lazy_smooth *lz)
+                   lazy_smooth *lz, size_t ip_known)
 {
     lazy_range(lz, lo > 0 ? lo - 1 : 0, hi + 1);
-    size_t ip = argmax(s, lo, hi);
+    size_t ip = ip_known < n ? ip_known : argmax(s, lo, hi);
     double dp = 0.0, peak = s[ip];
     if (ip > 0 && ip + 1 < n) {
         double ym = s[ip - 1], y0 = s[ip], yp = s[ip + 1], den = ym - 2 * y0 + yp;
@@ -721,7 +843,7 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
         return CS_OK;
     }
     struct shape sh;
-    if (!measure(env->smooth, n, 0, n, env->floor, &sh, NULL)) {
+    if (!measure(env->smooth, n, 0, n, env->floor, &sh, NULL, ip0)) {   /* ip0: argmax over 0..n */
         burst_none(out, snr, env->floor, env->floor_sigma);
         return CS_OK;
     }
@@ -743,9 +865,8 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
             return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
         }
         s2 = lz.pass[2];
-        double want = p->smooth_ratio * fwhm, tau_unused;
-        double var_tau = raw_noise_var_tau(env->intensity, env->quiet_first, env->quiet_count,
-                                           env->from_real ? 2.0 : 1.0, &tau_unused);
+        double want = p->smooth_ratio * fwhm;
+        double var_tau = quiet_var_tau(env);
         for (int it = 0; it < 4; it++) {
             double real = lazy_start(&lz, want);
             lazy_range(&lz, env->quiet_first, env->quiet_first + env->quiet_count);
@@ -754,7 +875,7 @@ int cs_burst_detect(const cs_envelope *env, const cs_burst_params *p, cs_burst *
             double lo = sh.rise - fwhm_meas, hi = sh.fall + fwhm_meas + 1;
             size_t a = lo > 0 ? (size_t)lo : 0, b = hi < (double)n ? (size_t)hi : n;
             struct shape s2h;
-            if (!measure(s2, n, a, b > a ? b : n, fl, &s2h, &lz))
+            if (!measure(s2, n, a, b > a ? b : n, fl, &s2h, &lz, SIZE_MAX))
                 break;
             sh = s2h;
             s = s2;

@@ -287,15 +287,45 @@ static double gate_noise(const double *x, size_t m, int cplx)
         return NAN;
     }
     memset(counts, 0, 65536 * sizeof *counts);
-    for (int part = 0; part < (cplx ? 2 : 1); part++)
+    /* the k-th smallest does not depend on the order of d: I and Q differences side by side */
+    if (cplx) {
+        size_t j = 0;
+#if defined(__GNUC__)
+        /* (I, Q) differences of one step in the two lanes of a vector; |.| clears the sign bit */
+        typedef double v2d __attribute__((vector_size(16)));
+        typedef long long v2l __attribute__((vector_size(16)));
+        const v2l nosign = {0x7fffffffffffffffLL, 0x7fffffffffffffffLL};
+        for (; j + 1 < m; j++) {
+            v2d a, b;
+            memcpy(&a, x + 2 * j + 2, sizeof a);
+            memcpy(&b, x + 2 * j, sizeof b);
+            v2l bits = (v2l)(a - b) & nosign;
+            memcpy(d + nd, &bits, sizeof bits);
+            counts[(uint64_t)bits[0] >> 48]++;
+            counts[(uint64_t)bits[1] >> 48]++;
+            nd += 2;
+        }
+#endif
+        for (; j + 1 < m; j++) {
+            double vr = fabs(x[2 * j + 2] - x[2 * j]), vi = fabs(x[2 * j + 3] - x[2 * j + 1]);
+            uint64_t br, bi;
+            memcpy(&br, &vr, sizeof br);
+            memcpy(&bi, &vi, sizeof bi);
+            counts[br >> 48]++;
+            counts[bi >> 48]++;
+            d[nd] = vr;
+            d[nd + 1] = vi;
+            nd += 2;
+        }
+    } else {
         for (size_t j = 0; j + 1 < m; j++) {
-            size_t a = cplx ? 2 * j + (size_t)part : j, b = cplx ? 2 * (j + 1) + (size_t)part : j + 1;
-            double v = fabs(x[b] - x[a]);
+            double v = fabs(x[j + 1] - x[j]);
             uint64_t bits;
             memcpy(&bits, &v, sizeof bits);
             counts[bits >> 48]++;
             d[nd++] = v;
         }
+    }
     double med = nd > 0 ? select_kth_nonneg(d, nd, nd / 2, counts) : 0.0;
     free(counts);
     free(d);
@@ -307,6 +337,64 @@ static double gate_noise(const double *x, size_t m, int cplx)
         ss += x[i] * x[i];
     s = sqrt(ss / (double)nv);
     return s > 0 ? s : 1.0;
+}
+
+/* With w NULL: the first of the gate's m samples (pairs for a complex record) that is not
+ * finite, m when all are. With w given (all samples finite): the indices j with w_j > 0 into
+ * idx (*nused of them) and *allzero = whether every such sample is zero. Loops specialised per
+ * kind of record (the test of the kind inside them cost as much as the work). */
+static size_t first_nonfinite(const double *x, size_t m, int cplx, const double *w, size_t *idx, size_t *nused,
+                              int *allzero)
+{
+    if (!w) {
+        /* x * 0 summed stays 0 unless some x is Inf or NaN: one multiply-add per value (two per
+           vector operation), the scan for the first bad sample only when it is not */
+        size_t nv = cplx ? 2 * m : m, i = 0;
+        double acc = 0.0;
+#if defined(__GNUC__)
+        typedef double v2 __attribute__((vector_size(16)));
+        v2 a2 = {0.0, 0.0};
+        const v2 z2 = {0.0, 0.0};
+        for (; i + 2 <= nv; i += 2) {
+            v2 v;
+            memcpy(&v, x + i, sizeof v);
+            a2 += v * z2;
+        }
+        acc = a2[0] + a2[1];
+#endif
+        for (; i < nv; i++)
+            acc += x[i] * 0.0;
+        if (acc == 0.0)
+            return m;
+        if (cplx) {
+            for (size_t j = 0; j < m; j++)
+                if (!isfinite(x[2 * j]) || !isfinite(x[2 * j + 1]))
+                    return j;
+        } else {
+            for (size_t j = 0; j < m; j++)
+                if (!isfinite(x[j]))
+                    return j;
+        }
+        return m;
+    }
+    size_t n = 0;
+    int zero = 1;
+    if (cplx) {
+        for (size_t j = 0; j < m; j++)
+            if (w[j] > 0) {
+                idx[n++] = j;
+                zero &= x[2 * j] == 0 && x[2 * j + 1] == 0;
+            }
+    } else {
+        for (size_t j = 0; j < m; j++)
+            if (w[j] > 0) {
+                idx[n++] = j;
+                zero &= x[j] == 0;
+            }
+    }
+    *nused = n;
+    *allzero = zero;
+    return m;
 }
 
 static int check_options(const cs_gatefit_options *o, size_t ncomp, cs_error *err)
@@ -429,31 +517,38 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
         return rc;
     const int cplx = rec->is_complex != 0;
     const double *x = rec->data + (cplx ? 2 * first : first);
-    for (size_t i = 0; i < (cplx ? 2 * m : m); i++)
-        if (!isfinite(x[i]))
-            return cs_error_set(err, CS_EDATA, rec->source, -1, -1,
-                                "gate '%s': non-finite sample %zu", g->name, first + (cplx ? i / 2 : i));
     double *w = malloc(m * sizeof *w), *ss_after = malloc((m + 1) * sizeof *ss_after);
     size_t *idx = malloc(m * sizeof *idx);
     cs_gatefit_result *r = NULL;
     cs_gate_workspace *own = NULL;
+    size_t bad = first_nonfinite(x, m, cplx, NULL, NULL, NULL, NULL);
+    if (bad < m) {
+        rc = cs_error_set(err, CS_EDATA, rec->source, -1, -1, "gate '%s': non-finite sample %zu", g->name,
+                          first + bad);
+        goto done;
+    }
     if (!w || !idx || !ss_after) {
         rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for a gate of %zu samples", m);
         goto done;
     }
-    rc = cs_window_fill(&g->window, m, g->periodic ? CS_WINDOW_PERIODIC : CS_WINDOW_SYMMETRIC, w);
-    if (rc != CS_OK) {
-        rc = cs_error_set(err, CS_EINVAL, NULL, -1, -1, "gate '%s': invalid window", g->name);
-        goto done;
-    }
+    /* a rectangular window uses every sample (no window to sample and test) */
+    const int all_used = g->window.type == &cs_window_rect;
     size_t nused = 0;
     int allzero = 1;
-    for (size_t j = 0; j < m; j++)
-        if (w[j] > 0) {
-            idx[nused++] = j;
-            if (x[cplx ? 2 * j : j] != 0 || (cplx && x[2 * j + 1] != 0))
-                allzero = 0;
+    if (all_used) {
+        for (size_t j = 0; j < m; j++)
+            idx[j] = j;
+        nused = m;
+        for (size_t i = 0; i < (cplx ? 2 * m : m) && allzero; i++)
+            allzero = x[i] == 0;
+    } else {
+        rc = cs_window_fill(&g->window, m, g->periodic ? CS_WINDOW_PERIODIC : CS_WINDOW_SYMMETRIC, w);
+        if (rc != CS_OK) {
+            rc = cs_error_set(err, CS_EINVAL, NULL, -1, -1, "gate '%s': invalid window", g->name);
+            goto done;
         }
+        first_nonfinite(x, m, cplx, w, idx, &nused, &allzero);
+    }
     F.P.cplx = cplx;
     F.P.x = x;
     F.P.m = m;
@@ -463,9 +558,19 @@ int cs_gatefit_run(cs_gate_workspace *ws, const cs_record *rec, const cs_gate *g
     F.P.nused = nused;
     F.P.nact = nused;
     ss_after[nused] = 0.0;
-    for (size_t i = nused; i-- > 0;) {
-        size_t j = idx[i];
-        ss_after[i] = ss_after[i + 1] + (cplx ? x[2 * j] * x[2 * j] + x[2 * j + 1] * x[2 * j + 1] : x[j] * x[j]);
+    if (cplx && nused == m) {   /* every sample used: idx[i] = i */
+        for (size_t i = nused; i-- > 0;)
+            ss_after[i] = ss_after[i + 1] + (x[2 * i] * x[2 * i] + x[2 * i + 1] * x[2 * i + 1]);
+    } else if (cplx) {
+        for (size_t i = nused; i-- > 0;) {
+            size_t j = idx[i];
+            ss_after[i] = ss_after[i + 1] + (x[2 * j] * x[2 * j] + x[2 * j + 1] * x[2 * j + 1]);
+        }
+    } else {
+        for (size_t i = nused; i-- > 0;) {
+            size_t j = idx[i];
+            ss_after[i] = ss_after[i + 1] + x[j] * x[j];
+        }
     }
     F.P.ss_after = ss_after;
     F.lo = lo_hz;

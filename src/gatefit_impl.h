@@ -144,6 +144,9 @@ CS_GATEFIT_INTERNAL int cs_gatefit_impl_start(cs_gate_workspace *ws, const gf_pr
                                               const cs_gatefit_start *user, double t_g,
                                               double lo_hz, gf_theta *th, cs_error *err);
 
+/* Internal variables of a fit at most. */
+#define GF_MAXNP (CS_GATEFIT_MAX_COMP * CS_GATEFIT_BURST_NPARAMS)
+
 /* One fit: the data, the layout and scales of the solver's internal variables u (see the top of
  * gatefit_solve.c), and counters. */
 typedef struct gf_fit {
@@ -164,6 +167,12 @@ typedef struct gf_fit {
     double s_fit;                        /* residual normalisation (signal units) */
     size_t nfev, njev;
     int last_nan;                        /* the last residual evaluation was not finite */
+    /* J^T J of the solver's Jacobian, formed by the Jacobian callback right after it wrote J
+     * (lower triangle, row-major np x np), and the J->data it belongs to (NULL: none): the
+     * solver's linear solver, scaling and Gauss-Newton test take it from here instead of
+     * forming it again from the thousands of rows of J (gatefit_solve.c) */
+    double jtj[GF_MAXNP * GF_MAXNP];
+    const double *jtj_of;
 } gf_fit;
 
 /* Natural parameters from the internal variables u; 0 when an exponential overflows. */

@@ -42,7 +42,14 @@
  * nearly degenerate (two decays for one line), and there the Cholesky solver's path ended at a
  * different point with a singular covariance. Undetermined directions are found by the
  * covariance's pivoted QR (below). A point where the model is not finite (e^{u1}
- * overflowing) gets huge residuals, so the trust region rejects it. Convergence: an accepted
+ * overflowing) gets huge residuals, so the trust region rejects it. J^T J is formed once per
+ * Jacobian, by the Jacobian callback right after it wrote J (one pass over the rows, each entry
+ * summed in gsl_blas_dsyrk's order); the one-component solver (gf_solver_chol, GSL's modified
+ * Cholesky as in gsl_multifit_nlinear_solver_cholesky), the More scaling (gf_scale_more: column
+ * norms from its diagonal) and the Gauss-Newton test below take it from there, and -J^T f is
+ * the trust region's own gradient g, instead of a gsl_blas_dsyrk per iteration, a gsl_blas_dgemv
+ * per trial step and a strided gsl_blas_dnrm2 per column (GSL lets a caller supply the solver
+ * and the scaling; the pattern of src/fit_solve.c). Convergence: an accepted
  * step with |du_j| <= xtol (1 + |u_j|) for every j; or GSL's gradient test (gtol). Near the
  * minimum of a noisy gate the damped steps shrink only linearly (by ~30 per iteration in the
  * tests), and with thousands of residuals the cost stops changing visibly (rounding of a sum of
@@ -60,7 +67,10 @@
  * gsl_multifit_nlinear_covar forms (J^T J)^-1 by QR with column pivoting, dropping columns with
  * |R_kk| <= 1e-10 |R_11|; a dropped column (GSL returns a zero row) marks its variable
  * undetermined (status SINGULAR, NaN errors for every reported parameter that depends on it; the
- * others keep theirs). Times sigma^2 / s^2 it is the covariance of u, and the reported covariance
+ * others keep theirs). When the equilibrated J^T J (k x k) shows that no column can be dropped
+ * (small_covariance: smallest singular value provably above 1e-4) its Cholesky inverse is taken
+ * instead; both give the same matrix to rounding, and the QR of the whole Jacobian was most of
+ * the covariance's cost. Times sigma^2 / s^2 it is the covariance of u, and the reported covariance
  * is G C G^T with G = d(reported)/du (block diagonal: center, Gamma or tau, t_peak depend on one
  * variable each; the amplitude A = |c_r| on the two amplitude variables, dA = (cr dcr + ci dci)/A,
  * and the phase phi = arg(c_r) - 2 pi (f - lo) s_r on those and u0,
@@ -109,6 +119,98 @@ int cs_gatefit_impl_theta(const gf_fit *F, const double *u, gf_theta *th)
     return ok;
 }
 
+/* cs_gatefit_impl_evaluate for the commonest fit, one decay (the tail's, over the longest gates),
+ * with the same operations in the same order as the general loop below (the same values, up to
+ * the sign of a residual that is exactly 0): the recurrence of gf_basis_next kept in registers,
+ * the complex products written out in real arithmetic (C's complex product checks every result
+ * for NaN), no loop over components, the time s = j dt from j counted in a double, and the
+ * residuals' finite test as one sum of r * 0 (Inf or NaN make it NaN) checked at the end. th:
+ * the natural parameters at u (ok: finite). */
+static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *res, gsl_matrix *J)
+{
+    const gf_problem *P = &F->P;
+    const double is = 1.0 / F->s_fit;
+    const double ph = -2.0 * PI_ * th->f[0] * F->sref[0];
+    const double complex rot = cos(ph) + I * sin(ph);
+    const double rtr = creal(rot), rti = cimag(rot);
+    gf_basis_it it;
+    cs_gatefit_impl_basis_init(&it, CS_GATEFIT_DECAY, th->f[0], th->rate[0], th->tp[0], P->dt);
+    const double qr = creal(it.q), qi = cimag(it.q);
+    const double cr = creal(th->c[0]), ci = cimag(th->c[0]);
+    const double c0 = 2.0 * PI_ * F->sf[0], sref = F->sref[0], rate = th->rate[0], aref = F->a_ref;
+    const double dt = P->dt;
+    const size_t tda = J ? J->tda : 0, rstride = res ? res->stride : 0;
+    double *rd = res ? res->data : NULL;
+    const double *x = P->x;
+    const int cplx = P->cplx;
+    double er = 0.0, ei = 0.0, sd = 0.0;   /* the basis at the last sample, its index as a double */
+    double bad = 0.0;
+    size_t jl = 0, left = 0;
+    int started = 0;
+    for (size_t i = 0; ok && i < P->nact; i++) {
+        size_t j = P->idx[i];
+        if (started && j == jl + 1 && left > 0) {
+            double nr = er * qr - ei * qi, ni = er * qi + ei * qr;   /* E *= q */
+            er = nr;
+            ei = ni;
+            left--;
+            sd += 1.0;
+        } else {
+            cs_gatefit_impl_basis_anchor(&it, j);
+            er = creal(it.E);
+            ei = cimag(it.E);
+            left = it.left;
+            started = 1;
+            sd = (double)j;
+        }
+        jl = j;
+        const double s = sd * dt;
+        const double vr = cr * er - ci * ei, vi = cr * ei + ci * er;   /* v = c E, the model */
+        if (J) {
+            double *Jr = J->data + (cplx ? 2 * i : i) * tda;
+            const double Err = rtr * er - rti * ei, Eri = rtr * ei + rti * er;   /* rot E */
+            const double jr = aref * Err * is, ji = aref * Eri * is;
+            const double a0 = c0 * (s - sref) * is;
+            const double a1 = -0.5 * s * rate * is;
+            Jr[0] = -a0 * vi;
+            Jr[1] = a1 * vr;
+            Jr[2] = jr;
+            Jr[3] = -ji;
+            if (cplx) {
+                double *Ji = Jr + tda;
+                Ji[0] = a0 * vr;
+                Ji[1] = a1 * vi;
+                Ji[2] = ji;
+                Ji[3] = jr;
+            }
+        }
+        /* residuals; bad stays 0 unless one is Inf or NaN (then the whole evaluation is
+           replaced by the penalty below, as the general loop's early stop leads to) */
+        if (cplx) {
+            double rr = (vr - x[2 * j]) * is, ri = (vi - x[2 * j + 1]) * is;
+            bad += rr * 0.0 + ri * 0.0;
+            if (rd) {
+                rd[2 * i * rstride] = rr;
+                rd[(2 * i + 1) * rstride] = ri;
+            }
+        } else {
+            double rr = (vr - x[j]) * is;
+            bad += rr * 0.0;
+            if (rd)
+                rd[i * rstride] = rr;
+        }
+    }
+    if (bad != 0.0 || isnan(bad))
+        ok = 0;
+    if (!ok) {
+        if (res)
+            gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
+        if (J)
+            gsl_matrix_set_zero(J);
+    }
+    return ok;
+}
+
 /* Residuals (res, nres values; may be NULL) and Jacobian (J, nres x np; may be NULL) at u.
  * Returns 1 when everything is finite. The basis comes from gf_basis_next (no exp or sincos
  * per sample) and J is written through its row pointers. */
@@ -117,6 +219,8 @@ int cs_gatefit_impl_evaluate(gf_fit *F, const double *u, gsl_vector *res, gsl_ma
     const gf_problem *P = &F->P;
     gf_theta th;
     int ok = cs_gatefit_impl_theta(F, u, &th);
+    if (P->ncomp == 1 && P->kind[0] == CS_GATEFIT_DECAY)
+        return evaluate_decay1(F, &th, ok, res, J);
     const double is = 1.0 / F->s_fit;
     double complex rot[CS_GATEFIT_MAX_COMP];
     gf_basis_it it[CS_GATEFIT_MAX_COMP];
@@ -211,13 +315,250 @@ static int cb_f(const gsl_vector *x, void *params, gsl_vector *f)
     return GSL_SUCCESS;
 }
 
+/* Lower triangle of J^T J (row-major k x k into G) for the row-major J (n rows, row stride tda,
+ * k columns). Each entry is summed over the rows in order from 0.0, as gsl_blas_dsyrk sums it
+ * (the same bits with GSL's reference CBLAS), but all entries in one pass over the rows: the
+ * matrix is read once instead of k (k + 1) / 2 times with a stride. One decay (k = 4), the fit
+ * with the longest gates, keeps its ten sums in registers. */
+static void gram_rows(const double *J, size_t n, size_t tda, size_t k, double *G)
+{
+#if defined(__GNUC__)
+    if (k == 4) {
+        /* the ten sums in the lanes of five vectors, each lane still summed over the rows in
+           order (the same bits): (g00, g10) += a0 (a0, a1), (g20, g30) += a0 (a2, a3),
+           (g11, g21) += a1 (a1, a2), (g31, g22) += (a1, a2)(a3, a2), (g32, g33) += a3 (a2, a3) */
+        typedef double v2 __attribute__((vector_size(16)));
+        v2 s0 = {0, 0}, s1 = {0, 0}, s2 = {0, 0}, s3 = {0, 0}, s4 = {0, 0};
+        for (size_t i = 0; i < n; i++, J += tda) {
+            v2 a01, a23;
+            memcpy(&a01, J, sizeof a01);
+            memcpy(&a23, J + 2, sizeof a23);
+            v2 b0 = {a01[0], a01[0]}, b1 = {a01[1], a01[1]}, b3 = {a23[1], a23[1]};
+            v2 a12 = {a01[1], a23[0]}, a32 = {a23[1], a23[0]};
+            s0 += b0 * a01;
+            s1 += b0 * a23;
+            s2 += b1 * a12;
+            s3 += a12 * a32;
+            s4 += b3 * a23;
+        }
+        G[0] = s0[0];
+        G[4] = s0[1];
+        G[5] = s2[0];
+        G[8] = s1[0];
+        G[9] = s2[1];
+        G[10] = s3[1];
+        G[12] = s1[1];
+        G[13] = s3[0];
+        G[14] = s4[0];
+        G[15] = s4[1];
+        return;
+    }
+#endif
+    if (k == 4) {
+        double g00 = 0, g10 = 0, g11 = 0, g20 = 0, g21 = 0, g22 = 0, g30 = 0, g31 = 0, g32 = 0, g33 = 0;
+        for (size_t i = 0; i < n; i++, J += tda) {
+            const double a0 = J[0], a1 = J[1], a2 = J[2], a3 = J[3];
+            g00 += a0 * a0;
+            g10 += a1 * a0;
+            g11 += a1 * a1;
+            g20 += a2 * a0;
+            g21 += a2 * a1;
+            g22 += a2 * a2;
+            g30 += a3 * a0;
+            g31 += a3 * a1;
+            g32 += a3 * a2;
+            g33 += a3 * a3;
+        }
+        G[0] = g00;
+        G[4] = g10;
+        G[5] = g11;
+        G[8] = g20;
+        G[9] = g21;
+        G[10] = g22;
+        G[12] = g30;
+        G[13] = g31;
+        G[14] = g32;
+        G[15] = g33;
+        return;
+    }
+    double acc[GF_MAXNP * (GF_MAXNP + 1) / 2];
+    const size_t nt = k * (k + 1) / 2;
+    for (size_t t = 0; t < nt; t++)
+        acc[t] = 0.0;
+    for (size_t i = 0; i < n; i++, J += tda)
+        for (size_t a = 0, t = 0; a < k; a++)
+            for (size_t b = 0; b <= a; b++, t++)
+                acc[t] += J[a] * J[b];
+    for (size_t a = 0, t = 0; a < k; a++)
+        for (size_t b = 0; b <= a; b++, t++)
+            G[a * k + b] = acc[t];
+}
+
 static int cb_df(const gsl_vector *x, void *params, gsl_matrix *J)
 {
     gf_fit *F = params;
     F->njev++;
     cs_gatefit_impl_evaluate(F, x->data, NULL, J);
+    gram_rows(J->data, J->size1, J->tda, F->np, F->jtj);
+    F->jtj_of = J->data;
     return GSL_SUCCESS;
 }
+
+/* ---------------------------------------------------------------- linear solver and scaling */
+
+/* The trust region's linear solver for one component: (J^T J + mu D^2) v = -J^T f by GSL's
+ * modified Cholesky decomposition (gsl_linalg_mcholesky_*), as gsl_multifit_nlinear_solver_cholesky
+ * solves it, but with J^T J taken from the Jacobian callback (cb_df forms it right after writing
+ * J, in one pass over the rows, instead of a gsl_blas_dsyrk at every iteration) and -J^T f taken
+ * from the trust region's gradient g = J^T f whenever f is the current residual vector (GSL
+ * computes g right after each Jacobian; the solve at every trial step otherwise repeats that
+ * product). Without the callback's matrix it forms J^T J itself. The pattern of src/fit_solve.c. */
+typedef struct gf_chol {
+    gsl_matrix *jtj;    /* J^T J (lower triangle) */
+    gsl_matrix *work;   /* J^T J + mu D^2, then its factor */
+    gsl_vector *rhs;
+    gsl_vector *work3;  /* 3k: condition estimate */
+    gsl_permutation *perm;
+    double mu;          /* the damping of the factor in work; -1: none */
+} gf_chol;
+
+static void gf_chol_free(void *vs)
+{
+    gf_chol *s = vs;
+    if (!s)
+        return;
+    gsl_matrix_free(s->jtj);
+    gsl_matrix_free(s->work);
+    gsl_vector_free(s->rhs);
+    gsl_vector_free(s->work3);
+    gsl_permutation_free(s->perm);
+    free(s);
+}
+
+static void *gf_chol_alloc(const size_t n, const size_t k)
+{
+    (void)n;
+    gf_chol *s = calloc(1, sizeof *s);
+    if (!s)
+        return NULL;
+    s->jtj = gsl_matrix_alloc(k, k);
+    s->work = gsl_matrix_alloc(k, k);
+    s->rhs = gsl_vector_alloc(k);
+    s->work3 = gsl_vector_alloc(3 * k);
+    s->perm = gsl_permutation_alloc(k);
+    s->mu = -1.0;
+    if (!s->jtj || !s->work || !s->rhs || !s->work3 || !s->perm) {
+        gf_chol_free(s);
+        return NULL;
+    }
+    return s;
+}
+
+static int gf_chol_init(const void *vts, void *vs)
+{
+    const gsl_multifit_nlinear_trust_state *ts = vts;
+    gf_chol *s = vs;
+    const gf_fit *F = ts->fdf->df == cb_df ? ts->fdf->params : NULL;
+    const size_t k = s->jtj->size1;
+    if (F && F->jtj_of == ts->J->data && F->np == k) {
+        for (size_t r = 0; r < k; r++)
+            for (size_t c = 0; c <= r; c++)
+                gsl_matrix_set(s->jtj, r, c, F->jtj[r * k + c]);
+    } else {
+        gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, ts->J, 0.0, s->jtj);
+    }
+    s->mu = -1.0;
+    return GSL_SUCCESS;
+}
+
+/* Factor the lower triangle of jtj + mu D^2 into s->work. */
+static int gf_chol_factor(gf_chol *s, double mu, const gsl_vector *diag)
+{
+    const size_t k = s->jtj->size1;
+    for (size_t r = 0; r < k; r++)
+        for (size_t c = 0; c <= r; c++)
+            gsl_matrix_set(s->work, r, c, gsl_matrix_get(s->jtj, r, c));
+    if (mu != 0.0)
+        for (size_t r = 0; r < k; r++) {
+            double d = gsl_vector_get(diag, r);
+            *gsl_matrix_ptr(s->work, r, r) += mu * d * d;
+        }
+    int st = gsl_linalg_mcholesky_decomp(s->work, s->perm, NULL);
+    s->mu = st == GSL_SUCCESS ? mu : -1.0;
+    return st;
+}
+
+static int gf_chol_presolve(const double mu, const void *vts, void *vs)
+{
+    const gsl_multifit_nlinear_trust_state *ts = vts;
+    return gf_chol_factor(vs, mu, ts->diag);
+}
+
+static int gf_chol_solve(const gsl_vector *f, gsl_vector *x, const void *vts, void *vs)
+{
+    const gsl_multifit_nlinear_trust_state *ts = vts;
+    gf_chol *s = vs;
+    if (f == ts->f) {
+        for (size_t j = 0; j < x->size; j++)   /* -J^T f = -g, the same product */
+            gsl_vector_set(s->rhs, j, -gsl_vector_get(ts->g, j));
+    } else {
+        gsl_blas_dgemv(CblasTrans, -1.0, ts->J, f, 0.0, s->rhs);
+    }
+    return gsl_linalg_mcholesky_solve(s->work, s->perm, s->rhs, x);
+}
+
+static int gf_chol_rcond(double *rcond, void *vs)
+{
+    gf_chol *s = vs;
+    if (s->mu != 0.0) {
+        int st = gf_chol_factor(s, 0.0, NULL);
+        if (st != GSL_SUCCESS)
+            return st;
+    }
+    double rc;
+    int st = gsl_linalg_mcholesky_rcond(s->work, s->perm, &rc, s->work3);
+    if (st == GSL_SUCCESS)
+        *rcond = sqrt(rc);
+    return st;
+}
+
+static const gsl_multifit_nlinear_solver gf_solver_chol = {"collshift-gatefit-cholesky", gf_chol_alloc,
+                                                           gf_chol_init, gf_chol_presolve, gf_chol_solve,
+                                                           gf_chol_rcond, gf_chol_free};
+
+/* The fit whose solve runs in this thread (GSL gives the scaling callback J alone). */
+static _Thread_local const gf_fit *gf_solving;
+
+/* More's scaling as gsl_multifit_nlinear_scale_more keeps it (J. J. More, "The Levenberg-Marquardt
+ * algorithm: implementation and theory", Numerical Analysis, Springer LNM 630, 105-116 (1978)):
+ * D_jj = the largest norm column j of J has had in this solve, 1 for a zero column; the norms
+ * from the diagonal of the callback's J^T J (GSL takes one strided gsl_blas_dnrm2 per column).
+ * A sum of squares out of [1e-280, 1e280] (possible under- or overflow) gets gsl_blas_dnrm2. */
+static int gf_scale_update(const gsl_matrix *J, gsl_vector *diag)
+{
+    const gf_fit *F = gf_solving;
+    const size_t k = J->size2;
+    const int have = F && F->jtj_of == J->data && F->np == k;
+    for (size_t j = 0; j < k; j++) {
+        double ss = have ? F->jtj[j * k + j] : NAN, nr = sqrt(ss);
+        if (!(ss >= 1e-280 && ss <= 1e280)) {
+            gsl_vector_const_view c = gsl_matrix_const_column(J, j);
+            nr = gsl_blas_dnrm2(&c.vector);
+        }
+        double *d = gsl_vector_ptr(diag, j);
+        *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
+    }
+    return GSL_SUCCESS;
+}
+
+static int gf_scale_init(const gsl_matrix *J, gsl_vector *diag)
+{
+    gsl_vector_set_zero(diag);
+    return gf_scale_update(J, diag);
+}
+
+static const gsl_multifit_nlinear_scale gf_scale_more = {"collshift-gatefit-more", gf_scale_init,
+                                                         gf_scale_update};
 
 /* |dx_j| <= xtol (1 + |x_j|) for every j. */
 static int small_step(const gsl_vector *x, const gsl_vector *dx, double xtol)
@@ -262,13 +603,21 @@ static int within_errors(const gsl_vector *d, const gsl_matrix *C)
  * f (normal equations, equilibrated, Cholesky), and whether every component of d is below
  * GF_NOPROG_NSE standard errors, the errors from (J^T J)^-1 times chi2/dof over all used
  * samples. Returns 0 when J^T J is not positive definite. A (np x np) and g (np) are scratch. */
-static int gn_normal(const gf_fit *F, const gsl_multifit_nlinear_workspace *gw, gsl_matrix *A, gsl_vector *g,
+static int gn_normal(const gf_fit *F, const gsl_multifit_nlinear_workspace *gw, double fn, gsl_matrix *A,
                      gsl_vector *d, int *within)
 {
     const size_t np = F->np;
     *within = 0;
-    gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, gw->J, 0.0, A);
-    gsl_blas_dgemv(CblasTrans, 1.0, gw->J, gw->f, 0.0, g);
+    /* J^T J from the Jacobian callback; g = J^T f is the trust region's own (GSL forms it after
+       every Jacobian, by the product this would compute) */
+    if (F->jtj_of == gw->J->data) {
+        for (size_t a = 0; a < np; a++)
+            for (size_t b = 0; b <= a; b++)
+                gsl_matrix_set(A, a, b, F->jtj[a * np + b]);
+    } else {
+        gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, gw->J, 0.0, A);
+    }
+    const gsl_vector *g = gw->g;
     double D[CS_GATEFIT_MAX_COMP * CS_GATEFIT_BURST_NPARAMS];
     for (size_t a = 0; a < np; a++) {
         double v = gsl_matrix_get(A, a, a);
@@ -288,7 +637,6 @@ static int gn_normal(const gf_fit *F, const gsl_multifit_nlinear_workspace *gw, 
         gsl_vector_set(d, a, -gsl_vector_get(g, a) / D[a]);
     if (gsl_linalg_cholesky_svx(A, d) != GSL_SUCCESS || gsl_linalg_cholesky_invert(A) != GSL_SUCCESS)
         return 0;
-    double fn = gsl_blas_dnrm2(gw->f);
     double s2 = (fn * fn + F->rest_ss) / (double)(F->nres_all > np ? F->nres_all - np : 1);
     int ok = 1;
     for (size_t a = 0; a < np; a++) {
@@ -309,11 +657,13 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
 {
     gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
     fp.trs = gsl_multifit_nlinear_trs_lm;
-    fp.scale = gsl_multifit_nlinear_scale_more;
+    fp.scale = &gf_scale_more;
     /* one component: Cholesky (its J is well conditioned in u); sums of components: QR (they
        can be nearly degenerate, e.g. two decays for one line, where the normal equations
        square the condition number) */
-    fp.solver = F->P.ncomp == 1 ? gsl_multifit_nlinear_solver_cholesky : gsl_multifit_nlinear_solver_qr;
+    fp.solver = F->P.ncomp == 1 ? &gf_solver_chol : gsl_multifit_nlinear_solver_qr;
+    F->jtj_of = NULL;
+    gf_solving = F;
     gsl_multifit_nlinear_workspace *gw =
         gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, F->nres, F->np);
     gsl_matrix *Jg = gsl_matrix_alloc(F->nres, F->np), *Cg = gsl_matrix_alloc(F->np, F->np);
@@ -386,9 +736,8 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
             break;
         }
         /* GSL's gradient test, max_j |g_j| max(u_j, 1) <= gtol max(|f|^2 / 2, 1), with |f|^2 over
-           every used sample (the constant residuals after the active stretch included) */
-        int info = 0;
-        gsl_multifit_nlinear_test(0.0, 0.0, 0.0, &info, gw);   /* fills gw->g = J^T f */
+           every used sample (the constant residuals after the active stretch included); gw->g
+           = J^T f is kept by the trust region */
         double gnorm = 0.0, fn = gsl_blas_dnrm2(gw->f);
         for (size_t j = 0; j < F->np; j++)
             gnorm = fmax(gnorm, fabs(fmax(gsl_vector_get(gw->x, j), 1.0) * gsl_vector_get(gw->g, j)));
@@ -400,7 +749,7 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
         /* the minimum (the Gauss-Newton step from here) within GF_NOPROG_NSE standard errors:
            converged; the step is applied as the last one */
         int within = 0;
-        if (gn_normal(F, gw, Cg, ug, dg, &within) && within) {
+        if (gn_normal(F, gw, fn, Cg, dg, &within) && within) {
             r->status = CS_FIT_CONVERGED;
             r->stop = CS_FIT_STOP_SMALL_STEP;
             polish = 1;
@@ -418,6 +767,8 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
     }
     r->niter = iter;
 done:
+    gf_solving = NULL;
+    F->jtj_of = NULL;
     gsl_multifit_linear_free(lw);
     gsl_vector_free(ug);
     gsl_vector_free(dg);
@@ -474,6 +825,55 @@ void cs_gatefit_impl_values(const gf_fit *F, const gf_theta *th, double *val)
     }
 }
 
+/* (J_e^T J_e)^-1 of the equilibrated Jacobian J_e (columns of unit norm; cn: the norms) from the
+ * k x k matrix J^T J alone, when that is certain to give what the pivoted QR of J_e would: the
+ * QR route (gsl_multifit_nlinear_covar) drops a column when |R_jj| <= GF_RANK_RTOL |R_11|, and
+ * for any order of the columns |R_jj| >= sigma_min(J_e) while |R_11| = 1 (unit columns), so no
+ * column is dropped when sigma_min(J_e) > GF_RANK_RTOL; and sigma_min^2 >= 1 / trace((J_e^T
+ * J_e)^-1). This route is taken only when that bound exceeds GF_SMALL_SMIN2 = 1e-8
+ * (sigma_min > 1e-4): far from the rank threshold, and with the inverse's condition number at
+ * most k 1e8, so the normal equations' rounding (about k eps relative in J^T J) moves the
+ * covariance by at most ~1e-7 relative in the worst case and typically by 1e-15 (one
+ * well-determined component: condition numbers of order 10). Otherwise (0 returned) the caller
+ * takes the QR route. The QR of the thousands x 4 Jacobian and its copy were most of the
+ * covariance's cost. Returns 1 with C (k x k, full) and cn filled. */
+#define GF_SMALL_SMIN2 1e-8
+
+static int small_covariance(const gsl_matrix *J, size_t k, double *cn, gsl_matrix *C)
+{
+    double G[GF_MAXNP * GF_MAXNP];
+    gram_rows(J->data, J->size1, J->tda, k, G);
+    for (size_t a = 0; a < k; a++) {
+        double v = G[a * k + a];
+        if (!(v >= 1e-280 && v <= 1e280))
+            return 0;
+        cn[a] = sqrt(v);
+    }
+    for (size_t a = 0; a < k; a++)
+        for (size_t b = 0; b <= a; b++)
+            gsl_matrix_set(C, a, b, G[a * k + b] / (cn[a] * cn[b]));
+    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    int st = gsl_linalg_cholesky_decomp1(C);
+    if (st == GSL_SUCCESS)
+        st = gsl_linalg_cholesky_invert(C);
+    gsl_set_error_handler(old);
+    if (st != GSL_SUCCESS)
+        return 0;
+    double tr = 0.0;
+    for (size_t a = 0; a < k; a++) {
+        double v = gsl_matrix_get(C, a, a);
+        if (!(v > 0) || !isfinite(v))
+            return 0;
+        tr += v;
+    }
+    if (!(1.0 / tr > GF_SMALL_SMIN2))
+        return 0;
+    for (size_t a = 0; a < k; a++)   /* symmetric: the lower triangle is the reference */
+        for (size_t b = a + 1; b < k; b++)
+            gsl_matrix_set(C, a, b, gsl_matrix_get(C, b, a));
+    return 1;
+}
+
 /* Covariance of the reported parameters into r->cov (NaN rows when undetermined); sets
  * *singular. factor = sigma^2 / s_fit^2. */
 int cs_gatefit_impl_covariance(gf_fit *F, const double *u, const gf_theta *th, double factor,
@@ -490,15 +890,17 @@ int cs_gatefit_impl_covariance(gf_fit *F, const double *u, const gf_theta *th, d
         goto done;
     }
     cs_gatefit_impl_evaluate(F, u, NULL, J);
-    for (size_t q = 0; q < np; q++) {
-        gsl_vector_view col = gsl_matrix_column(J, q);
-        cn[q] = gsl_blas_dnrm2(&col.vector);
-        if (cn[q] > 0)
-            gsl_vector_scale(&col.vector, 1.0 / cn[q]);
-    }
-    if (gsl_multifit_nlinear_covar(J, GF_RANK_RTOL, C) != GSL_SUCCESS) {
-        rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "covariance failed");
-        goto done;
+    if (!small_covariance(J, np, cn, C)) {
+        for (size_t q = 0; q < np; q++) {
+            gsl_vector_view col = gsl_matrix_column(J, q);
+            cn[q] = gsl_blas_dnrm2(&col.vector);
+            if (cn[q] > 0)
+                gsl_vector_scale(&col.vector, 1.0 / cn[q]);
+        }
+        if (gsl_multifit_nlinear_covar(J, GF_RANK_RTOL, C) != GSL_SUCCESS) {
+            rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "covariance failed");
+            goto done;
+        }
     }
     for (size_t a = 0; a < np; a++) {   /* undo the equilibration; mark undetermined variables */
         int und = !(cn[a] > 0) || !(gsl_matrix_get(C, a, a) > 0);

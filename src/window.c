@@ -381,6 +381,11 @@ static void fill_checked(const cs_window *w, size_t n, int periodic, double *out
         return;
     }
     const cs_window_type *t = w->type;
+    if (t->shape == shape_rect) {   /* all ones: no call per sample */
+        for (size_t k = 0; k < n; k++)
+            out[k] = 1.0;
+        return;
+    }
     size_t m = periodic ? n : n - 1;
     for (size_t k = 0; k <= m / 2; k++) {
         double x = (double)(m - 2 * k) / (double)m;

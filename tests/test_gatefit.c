@@ -1032,6 +1032,55 @@ START_TEST(test_not_converged)
 }
 END_TEST
 
+/* The errors of a well-determined fit are the inverse Fisher information (common practice: the
+ * Cramer-Rao bound of a Gaussian likelihood, which the least-squares covariance equals at the
+ * truth). A noiseless complex decay M(s) = A e^{i phi} e^{(2 pi i f - Gamma/2) s} with the noise
+ * level given (sigma per real component) is fitted exactly, and with |M|^2 = A^2 e^{-Gamma s},
+ * dM/df = 2 pi i s M, dM/dGamma = -(s/2) M, dM/dA = M/A, dM/dphi = i M, the information
+ * I_ab = sum_j Re(dM/da conj(dM/db)) / sigma^2 splits into the blocks (f, phi) and (Gamma, A):
+ *     I_ff = sum (2 pi s)^2 |M|^2, I_fphi = sum 2 pi s |M|^2, I_phiphi = sum |M|^2,
+ *     I_GG = sum (s/2)^2 |M|^2, I_GA = -sum (s/2) |M|^2 / A, I_AA = sum |M|^2 / A^2,
+ * all over s = j dt, j = 0 .. m-1, divided by sigma^2; the errors are the square roots of the
+ * diagonal of the blocks' inverses. The whole gate is above the solver's e^-20 cut (Gamma s
+ * <= 25 here), so the sums are over every sample. */
+START_TEST(test_errors_fisher)
+{
+    const double dt = 4e-9, sigma = 0.01;
+    const size_t m = 2000;
+    comp_truth c = {0, 3e6, 2 * PI_T * 0.5e6, 0, 1.0, 0.7};
+    cs_record *rec = new_record(m, 1, dt, 0.0);
+    add_model(rec, &c, 1, 0.0, 0.0);
+    cs_gate g = make_gate("rect", 0.0, (double)m * dt);
+    cs_gatefit_options o;
+    cs_gatefit_options_default(&o);
+    o.noise = CS_GATEFIT_NOISE_GIVEN;
+    o.noise_sd = sigma;
+    cs_gatefit_result *r = NULL;
+    cs_error err;
+    ck_assert_msg(cs_gatefit_run(NULL, rec, &g, "decay", 0.0, &o, &r, &err) == CS_OK, "%s", err.msg);
+    ck_assert_int_eq(r->status, CS_FIT_CONVERGED);
+    double Iff = 0, Ifp = 0, Ipp = 0, IGG = 0, IGA = 0, IAA = 0;
+    for (size_t j = 0; j < m; j++) {
+        double s = (double)j * dt, M2 = c.A * c.A * exp(-c.rate * s);
+        Iff += 4 * PI_T * PI_T * s * s * M2;
+        Ifp += 2 * PI_T * s * M2;
+        Ipp += M2;
+        IGG += 0.25 * s * s * M2;
+        IGA -= 0.5 * s * M2 / c.A;
+        IAA += M2 / (c.A * c.A);
+    }
+    double d1 = Iff * Ipp - Ifp * Ifp, d2 = IGG * IAA - IGA * IGA, s2 = sigma * sigma;
+    const cs_gatefit_component *q = &r->comp[0];
+    CHECK_ABS(q->center_hz_err, sqrt(s2 * Ipp / d1), 1e-6, sqrt(s2 * Ipp / d1), "centre error");
+    CHECK_ABS(q->phase_rad_err, sqrt(s2 * Iff / d1), 1e-6, sqrt(s2 * Iff / d1), "phase error");
+    CHECK_ABS(q->gamma_per_s_err, sqrt(s2 * IAA / d2), 1e-6, sqrt(s2 * IAA / d2), "gamma error");
+    CHECK_ABS(q->amplitude_err, sqrt(s2 * IGG / d2), 1e-6, sqrt(s2 * IGG / d2), "amplitude error");
+    CHECK_ABS(q->center_hz, c.f, 1e-6, q->center_hz_err, "centre");
+    cs_gatefit_result_free(r);
+    cs_record_free(rec);
+}
+END_TEST
+
 /* Parameters the data do not determine make the status SINGULAR, with NaN errors for exactly
  * the parameters that depend on them. A real record with a line exactly at 0 Hz: the model
  * A cos(2 pi f s + phi) env is even in f and, at phi = 0, flat in phi to first order, so the
@@ -1104,6 +1153,7 @@ static Suite *gatefit_suite(void)
     tcase_add_test(tc, test_errors);
     tcase_add_test(tc, test_not_converged);
     tcase_add_test(tc, test_singular);
+    tcase_add_test(tc, test_errors_fisher);
     suite_add_tcase(s, tc);
     return s;
 }
