@@ -66,6 +66,7 @@ typedef struct txt {
     long prev_line;
     int dir;               /* spectrum axis direction: +1, -1, 0 unknown yet */
     double t_first, t_prev, step1, dmin, dmax;
+    double step1_tol;      /* TXT_STEP_TOL * step1 */
     long step1_line, dmin_line, dmax_line;
 } txt;
 
