@@ -58,20 +58,21 @@ IO_NUMBER_INLINE uint64_t io_number_load8(const char *p)
     return x;
 }
 
-/* The first eight bytes at p less '0' each (t), and the number of leading digits among them
- * (0..8). A byte is flagged as not a digit when its top bit is set (0x80..0xFF), when adding 0x46
- * sets the top bit (above '9') or when subtracting '0' does (below '0'). Carries and borrows cross
- * from a byte only to the next higher one, and only out of a byte that is not a digit; so the
- * lowest flagged byte is exactly the first byte that is not a digit, and the bytes of t below it
- * are exact digit values (what lies above is discarded by the caller). */
-IO_NUMBER_INLINE unsigned io_number_digits8(const char *p, uint64_t *t)
+/* The first eight bytes at p less '0' each (*t), and the bytes that are not digits: the top bit
+ * of each such byte set in the result (0 when all eight are digits). For a byte b with no carry
+ * or borrow coming in, b + 0x46 has its top bit set for b in 0x3A..0xB9 and b - 0x30 (modulo
+ * 256) for b in 0x00..0x2F and 0xB0..0xFF: together every byte but '0'..'9', for which neither
+ * is set (0x76..0x7F, 0..9) and neither carries or borrows into the next byte. So carries and
+ * borrows come only out of bytes that are not digits, the lowest flagged byte is exactly the
+ * first byte that is not a digit, and the bytes of *t below it are exact digit values (what lies
+ * above is discarded by the caller). The lowest set bit is then bit 8 n + 7, n the count of
+ * leading digits. */
+IO_NUMBER_INLINE uint64_t io_number_digits8(const char *p, uint64_t *t)
 {
     const uint64_t x = io_number_load8(p);
     const uint64_t s = x - UINT64_C(0x3030303030303030);
-    const uint64_t nd = (x | s | (x + UINT64_C(0x4646464646464646))) &
-                        UINT64_C(0x8080808080808080);
     *t = s;
-    return nd ? (unsigned)__builtin_ctzll(nd) >> 3 : 8u;
+    return (s | (x + UINT64_C(0x4646464646464646))) & UINT64_C(0x8080808080808080);
 }
 
 /* The value of eight digits x (bytes already less '0', each 0..9), the first one in the lowest
@@ -136,11 +137,16 @@ IO_NUMBER_INLINE const char *io_decimal_scan_impl(const char *b, const char *e, 
     p += neg | (*p == '+');
     uint64_t w = 0;
     const char *ds = p; /* the mantissa's first character */
-    for (; IO_NUMBER_IN(p); p++) {
-        unsigned d = (unsigned)(unsigned char)*p - '0';
-        if (d > 9)
-            break;
-        w = w * 10 + d;
+    if ((padded || e - p >= 2) && (unsigned)(unsigned char)*p - '0' <= 9 && p[1] == '.') {
+        w = (unsigned)(unsigned char)*p - '0'; /* one digit before the point, the common case */
+        p++;
+    } else {
+        for (; IO_NUMBER_IN(p); p++) {
+            unsigned d = (unsigned)(unsigned char)*p - '0';
+            if (d > 9)
+                break;
+            w = w * 10 + d;
+        }
     }
     long frac = 0; /* digits after the point */
     int point = 0;
@@ -149,16 +155,16 @@ IO_NUMBER_INLINE const char *io_decimal_scan_impl(const char *b, const char *e, 
         point = 1;
 #if IO_NUMBER_SWAR
         while (padded || e - p >= 8) {
-            uint64_t t;
-            unsigned n = io_number_digits8(p, &t);
-            if (n == 8) {
+            uint64_t t, nd = io_number_digits8(p, &t);
+            if (!nd) {
                 w = w * 100000000u + io_number_eight_value(t);
                 p += 8;
                 continue;
             }
-            if (n) {
-                w = w * u10[n] + io_number_eight_value(t << (64 - 8 * n));
-                p += n;
+            unsigned z = (unsigned)__builtin_ctzll(nd); /* 8 n + 7, n digits */
+            if (z > 7) {
+                w = w * u10[z >> 3] + io_number_eight_value(t << (71 - z));
+                p += z >> 3;
             }
             goto fraction_done;
         }
@@ -175,9 +181,9 @@ IO_NUMBER_INLINE const char *io_decimal_scan_impl(const char *b, const char *e, 
         frac = (long)(p - fs);
     }
     long ndig = (long)(p - ds) - point; /* every mantissa digit */
-    if (ndig <= 0)
-        return NULL;
-    if (ndig > 19) {
+    if ((unsigned long)ndig - 1 >= 19) { /* none, or more than 19 */
+        if (ndig <= 0)
+            return NULL;
         /* w is exact when at most 19 digits follow the leading zeros (w < 10^19 < 2^64); more
          * than 4096 digits go to strtod in any case, so that q below stays exact although only
          * the exponent's first six digits are read */
@@ -206,10 +212,6 @@ IO_NUMBER_INLINE const char *io_decimal_scan_impl(const char *b, const char *e, 
             ex = -ex;
     }
 #undef IO_NUMBER_IN
-    if (w == 0) {
-        *v = neg ? -0.0 : 0.0;
-        return p;
-    }
     long q = ex - frac; /* |ex| < 10^6, frac <= 4096 */
 #if defined(FLT_EVAL_METHOD) && FLT_EVAL_METHOD == 0
     /* Clinger's fast path (W. D. Clinger, "How to read floating point numbers accurately",
@@ -217,7 +219,7 @@ IO_NUMBER_INLINE const char *io_decimal_scan_impl(const char *b, const char *e, 
      * correctly rounded result. It needs no extended intermediate precision (FLT_EVAL_METHOD 0);
      * elsewhere io_number_slow decides these numbers too. */
     if ((unsigned long)(q + 22) <= 44 && w <= (uint64_t)1 << 53) {
-        double d = (double)(int64_t)w;
+        double d = (double)(int64_t)w; /* w = 0 gives +0 and, negated, -0 */
         d = q < 0 ? d / p10[-q] : d * p10[q];
         *v = neg ? -d : d;
         return p;
@@ -225,6 +227,10 @@ IO_NUMBER_INLINE const char *io_decimal_scan_impl(const char *b, const char *e, 
 #else
     (void)p10;
 #endif
+    if (w == 0) {
+        *v = neg ? -0.0 : 0.0;
+        return p;
+    }
     return io_number_slow(w, q, neg, v) ? p : NULL;
 }
 

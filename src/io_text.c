@@ -45,14 +45,24 @@
  *
  * Parsing strategy
  * ----------------
- * The file is read in 4 MiB chunks into one buffer; lines are found with memchr and handled in
- * place. A partial last line is moved to the front of the buffer before the next read (since a
- * line is at most 1 MiB, there is always room). Fields are taken one at a time. A field in use
- * is first tried by num_field(): the number at its start is read by io_decimal_scan (inline,
- * io_number_impl.h: the digits eight at a time, then Clinger's fast path or Eisel-Lemire), and
- * when only blanks follow it up to the delimiter, that is the field - its end is found by the
- * number's own scan, with no separate search for the delimiter. Any other field (quoted, long,
- * not plain decimal, or not decided there) goes the general way: next_field() finds it, it is
+ * The file is read in 4 MiB chunks into one buffer, followed by TXT_PAD zero bytes; lines are
+ * handled in place. A partial last line is moved to the front of the buffer before the next read
+ * (since a line is at most 1 MiB, there is always room).
+ * Once the columns are decided (the first data row), each line is first tried the fast way
+ * (fast_rows, fast_line): read straight from the buffer, field after field, each field in use by
+ * io_decimal_scan_padded (its eight-byte loads may run past the line into the padding, which is
+ * why it is there), the delimiters and the line end ("\n" or "\r\n") checked in passing. A line
+ * it takes has exactly the values, checks and counts the general way below gives it; any other
+ * line (comment, blank, quoted or undecided field, wrong field count, partial line at the end of
+ * the buffer) goes the general way, and is taken or refused there as before. fast_line's comment
+ * says why both ways agree.
+ * The general way: lines are found with memchr and NUL-terminated, and fields are taken one at
+ * a time. A field in use is first tried by num_field(): the number at its start is read by
+ * io_decimal_scan (inline, io_number_impl.h: the digits after the point eight at a time, then
+ * Clinger's fast path or Eisel-Lemire), and when only blanks follow it up to the delimiter, that
+ * is the field - its end is found by the number's own scan, with no separate search for the
+ * delimiter. Any other field (quoted, long, not plain decimal, or not decided there) goes the
+ * slow way: next_field() finds it, it is
  * NUL-terminated in place and converted by num_fast() (the same exact parser, then strtod),
  * and field_value() explains a refusal. Both ways accept the same fields with the same values
  * (see num_field). Nothing is allocated per line or per field: values go straight into arrays
@@ -682,20 +692,11 @@ static inline const char *fast_line(const char *b, char d, const unsigned char *
             if ((size_t)(s - p) > TXT_MAX_FIELD)
                 return NULL;
         }
-        /* s: the field's end; then blanks (skipped by num_field), the delimiter or the line end */
-        if (*s != d || col == last) {
-            if (col == last) {
-                if (d == ' ')
-                    while (is_blank(*s))
-                        s++;
-                else
-                    while (*s != d && is_blank(*s))
-                        s++;
-                s += *s == '\r';
-                if (*s != '\n' || (size_t)(s - b) > TXT_MAX_LINE)
-                    return NULL;
-                return s;
-            }
+        if (col == last)
+            break;
+        /* s: the field's end; then blanks (skipped by num_field as by next_field) and the
+         * delimiter */
+        if (*s != d) {
             if (d == ' ') {
                 if (!is_blank(*s))
                     return NULL;
@@ -716,6 +717,21 @@ static inline const char *fast_line(const char *b, char d, const unsigned char *
                     p++;
         }
     }
+    /* s: the last field's end; then blanks and the line end */
+    if (*s != '\n') {
+        if (d == ' ')
+            while (is_blank(*s))
+                s++;
+        else
+            while (*s != d && is_blank(*s))
+                s++;
+        s += *s == '\r';
+        if (*s != '\n')
+            return NULL;
+    }
+    if ((size_t)(s - b) > TXT_MAX_LINE)
+        return NULL;
+    return s;
 }
 
 /* Data lines the fast way (fast_line), as many as follow: each is counted, checked and stored
@@ -725,19 +741,31 @@ static int fast_rows(txt *c)
     const char d = c->delim;
     const unsigned char *role = c->role;
     const size_t last = c->ncols - 1, max = c->o->max_samples;
+    const char *buf = c->buf;
+    size_t pos = c->pos;
+    long line = c->line;
+    int rc = CS_OK;
+    /* below this row count row_room has nothing to do: n < cap, and n < max when max is set */
+    size_t stop = max && max < c->cap ? max : c->cap;
     for (;;) {
         double v[R_COUNT];
-        const char *nl = fast_line(c->buf + c->pos, d, role, last, v);
+        const char *nl = fast_line(buf + pos, d, role, last, v);
         if (!nl)
-            return CS_OK;
-        long line = ++c->line;
-        c->pos = c->scan = (size_t)(nl - c->buf) + 1;
-        int rc = CS_OK;
-        if (((max && c->n >= max) || c->n == c->cap) && (rc = row_room(c, line)))
-            return rc;
+            break;
+        line++;
+        pos = (size_t)(nl - buf) + 1;
+        if (c->n >= stop) {
+            c->line = line; /* grow() names it */
+            if ((rc = row_room(c, line)))
+                break;
+            stop = max && max < c->cap ? max : c->cap;
+        }
         if ((rc = row_take(c, v, line)))
-            return rc;
+            break;
     }
+    c->line = line;
+    c->pos = c->scan = pos;
+    return rc;
 }
 
 /* The first non-comment line: delimiter, header or not, column count. */
