@@ -55,7 +55,8 @@
  * it takes has exactly the values, checks and counts the general way below gives it; any other
  * line (comment, blank, quoted or undecided field, wrong field count, partial line at the end of
  * the buffer) goes the general way, and is taken or refused there as before. fast_line's comment
- * says why both ways agree.
+ * says why both ways agree. When more than 64 data rows, and more than a quarter of them, came
+ * the general way, the fast way is no longer tried (it would only cost a failed try per row).
  * The general way: lines are found with memchr and NUL-terminated, and fields are taken one at
  * a time. A field in use is first tried by num_field(): the number at its start is read by
  * io_decimal_scan (inline, io_number_impl.h: the digits after the point eight at a time, then
@@ -812,7 +813,7 @@ static int run(txt *c)
     char *lb = NULL, *le = NULL;
     int r;
     for (;;) {
-        if (c->decided && (r = fast_rows(c)))
+        if (c->decided && !c->no_fast && (r = fast_rows(c)))
             return r;
         if ((r = next_line(c, &lb, &le)) != 1)
             break;
@@ -846,6 +847,11 @@ static int run(txt *c)
             return r;
         if ((r = data_row(c, p, le, line)))
             return r;
+        /* a data row the fast way did not take (or the first one): when such rows are not rare
+         * (quoted fields, numbers of more than 19 digits), the fast way would only add a failed
+         * try to every row, and it is given up */
+        if (++c->slow_rows > 64 && c->slow_rows > c->n / 4)
+            c->no_fast = 1;
     }
     return r;
 }

@@ -36,6 +36,8 @@ typedef struct txt {
     size_t len, pos, scan; /* valid bytes, start of the next line, where to resume memchr */
     int eof;
     long line;             /* physical line number of the current line */
+    size_t slow_rows;      /* data rows read the general way (io_text.c, run) */
+    int no_fast;           /* 1: the fast way (fast_rows) is no longer tried */
 
     /* table shape */
     char delim;            /* 0 undecided; ' ' runs of blanks */
