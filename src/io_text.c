@@ -45,14 +45,25 @@
  *
  * Parsing strategy
  * ----------------
- * The file is read in 4 MiB chunks into one buffer; lines are found with memchr and handled in
- * place. A partial last line is moved to the front of the buffer before the next read (since a
- * line is at most 1 MiB, there is always room). Fields are taken one at a time. A field in use
- * is first tried by num_field(): the number at its start is read by io_decimal_scan (inline,
- * io_number_impl.h: the digits eight at a time, then Clinger's fast path or Eisel-Lemire), and
- * when only blanks follow it up to the delimiter, that is the field - its end is found by the
- * number's own scan, with no separate search for the delimiter. Any other field (quoted, long,
- * not plain decimal, or not decided there) goes the general way: next_field() finds it, it is
+ * The file is read in 4 MiB chunks into one buffer, followed by TXT_PAD zero bytes; lines are
+ * handled in place. A partial last line is moved to the front of the buffer before the next read
+ * (since a line is at most 1 MiB, there is always room).
+ * Once the columns are decided (the first data row), each line is first tried the fast way
+ * (fast_rows, fast_line): read straight from the buffer, field after field, each field in use by
+ * io_decimal_scan_padded (its eight-byte loads may run past the line into the padding, which is
+ * why it is there), the delimiters and the line end ("\n" or "\r\n") checked in passing. A line
+ * it takes has exactly the values, checks and counts the general way below gives it; any other
+ * line (comment, blank, quoted or undecided field, wrong field count, partial line at the end of
+ * the buffer) goes the general way, and is taken or refused there as before. fast_line's comment
+ * says why both ways agree. When more than 64 data rows, and more than a quarter of them, came
+ * the general way, the fast way is no longer tried (it would only cost a failed try per row).
+ * The general way: lines are found with memchr and NUL-terminated, and fields are taken one at
+ * a time. A field in use is first tried by num_field(): the number at its start is read by
+ * io_decimal_scan (inline, io_number_impl.h: the digits after the point eight at a time, then
+ * Clinger's fast path or Eisel-Lemire), and when only blanks follow it up to the delimiter, that
+ * is the field - its end is found by the number's own scan, with no separate search for the
+ * delimiter. Any other field (quoted, long, not plain decimal, or not decided there) goes the
+ * slow way: next_field() finds it, it is
  * NUL-terminated in place and converted by num_fast() (the same exact parser, then strtod),
  * and field_value() explains a refusal. Both ways accept the same fields with the same values
  * (see num_field). Nothing is allocated per line or per field: values go straight into arrays
@@ -78,6 +89,7 @@
 #define TXT_MAX_LINE ((size_t)1 << 20)  /* longest accepted line, bytes */
 #define TXT_MAX_FIELD ((size_t)1024)    /* longest accepted field, bytes */
 #define TXT_FIRST_CAP ((size_t)4096)    /* first array capacity, rows */
+#define TXT_PAD ((size_t)16)            /* zero bytes after the buffer's valid bytes */
 
 /* ---------------------------------------------------------------- small helpers */
 
@@ -162,6 +174,7 @@ static int next_line(txt *c, char **lb, char **le)
         size_t want = TXT_BUF_BYTES - c->len;
         size_t got = fread(c->buf + c->len, 1, want, c->f);
         c->len += got;
+        memset(c->buf + c->len, 0, TXT_PAD); /* the padding fast_line's scans rely on */
         if (got < want) {
             if (ferror(c->f))
                 return io_text_fail(c, CS_EIO, c->line + 1, "read error: %s", strerror(errno));
@@ -531,7 +544,7 @@ static int take_spectrum(txt *c, const double *v, long line)
     return CS_OK;
 }
 
-static int take_record(txt *c, const double *v, long line)
+static inline int take_record(txt *c, const double *v, long line)
 {
     if (c->has_time) {
         double t = v[R_T] * c->tscale + c->toffset;
@@ -545,9 +558,10 @@ static int take_record(txt *c, const double *v, long line)
                                     t, c->t_prev);
             if (c->n == 1) {
                 c->step1 = c->dmin = c->dmax = d;
+                c->step1_tol = TXT_STEP_TOL * d;
                 c->step1_line = c->dmin_line = c->dmax_line = line;
             } else {
-                if (fabs(d - c->step1) > TXT_STEP_TOL * c->step1)
+                if (fabs(d - c->step1) > c->step1_tol)
                     return io_text_fail(c, CS_EDATA, line,
                                         "non-uniform sampling at line %ld: step %.6g s, expected "
                                         "%.6g s (the first step, lines %ld-%ld; steps must agree "
@@ -570,16 +584,35 @@ static int take_record(txt *c, const double *v, long line)
     return CS_OK;
 }
 
+/* Before a data row is read: the row limit, and room for the row. */
+static inline int row_room(txt *c, long line)
+{
+    if (c->o->max_samples && c->n >= c->o->max_samples)
+        return io_text_fail(c, CS_EDATA, line, "more than %zu rows (the max_samples limit)",
+                            c->o->max_samples);
+    if (c->n == c->cap)
+        return grow(c);
+    return CS_OK;
+}
+
+/* After a data row is read: its checks, and the row stored and counted. */
+static inline int row_take(txt *c, const double *v, long line)
+{
+    int rc = c->kind == CS_KIND_SPECTRUM ? take_spectrum(c, v, line) : take_record(c, v, line);
+    if (rc)
+        return rc;
+    c->n++;
+    c->last_data_line = line;
+    return CS_OK;
+}
+
 static int data_row(txt *c, char *lb, char *le, long line)
 {
     double v[R_COUNT];
     char *p = lb, *fb, *fe;
     size_t col = 0;
     int rc;
-    if (c->o->max_samples && c->n >= c->o->max_samples)
-        return io_text_fail(c, CS_EDATA, line, "more than %zu rows (the max_samples limit)",
-                            c->o->max_samples);
-    if (c->n == c->cap && (rc = grow(c)))
+    if ((rc = row_room(c, line)))
         return rc;
     for (;;) {
         if (col < c->ncols && c->role[col] && num_field(c->delim, &p, le, &v[c->role[col]])) {
@@ -610,12 +643,130 @@ static int data_row(txt *c, char *lb, char *le, long line)
         return io_text_fail(c, CS_EFORMAT, line, "expected %zu column%s, found %zu%s", c->ncols,
                             c->ncols == 1 ? "" : "s", col, hint);
     }
-    rc = c->kind == CS_KIND_SPECTRUM ? take_spectrum(c, v, line) : take_record(c, v, line);
-    if (rc)
-        return rc;
-    c->n++;
-    c->last_data_line = line;
-    return CS_OK;
+    return row_take(c, v, line);
+}
+
+/*
+ * The fast way through a data line, straight from the read buffer: the line at c->pos, when it
+ * is complete in the buffer and its fields are what the general way (next_line, then data_row)
+ * takes without a question - the fields in use plain decimal numbers that io_decimal_scan
+ * decides, possibly with blanks around them, the others anything up to the delimiter - with
+ * exactly c->ncols fields. Then it returns the line's '\n', with the values in v as data_row
+ * would set them; else NULL, having changed nothing, and the general way takes the line (and
+ * says what is wrong with it, if anything).
+ * Why both ways agree. The number of a field in use is read by io_decimal_scan_padded, which
+ * returns what io_decimal_scan on the NUL-terminated line returns (io_number_impl.h: the line's
+ * NUL and this '\n' both end a number), and the blanks around it and the delimiters are
+ * checked as num_field checks them; the leading blanks of the line are skipped as run() skips
+ * them. A line that would be blank, a comment, too long, or end in a lone '\r' or at the end of
+ * the valid bytes (where the padding's NUL stops every scan) is left to the general way; so is
+ * an unused field holding '\r' or NUL, or longer than TXT_MAX_FIELD. The line end is "\n" or
+ * "\r\n", as next_line cuts it.
+ * The buffer holds TXT_PAD zero bytes after its valid ones, so that the eight-byte loads of the
+ * scan stay inside it and read only written bytes.
+ */
+static inline const char *fast_line(const char *b, char d, const unsigned char *role, size_t last,
+                                    double *v)
+{
+    const char *p = b, *s;
+    while (is_blank(*p))
+        p++;
+    if (*p == '#' || *p == '\r' || *p == '\n' || !*p)
+        return NULL; /* a comment or a blank line, even when the first column is unused */
+    for (size_t col = 0;; col++) {
+        int r = role[col];
+        if (r) {
+            s = io_decimal_scan_padded(p, &v[r]);
+            if (!s || (size_t)(s - p) > TXT_MAX_FIELD)
+                return NULL;
+        } else {
+            s = p;
+            if (d == ' ') {
+                while (*s && *s != '\n' && *s != '\r' && !is_blank(*s))
+                    s++;
+                if (s == p)
+                    return NULL;
+            } else {
+                while (*s && *s != '\n' && *s != '\r' && *s != d)
+                    s++;
+            }
+            if ((size_t)(s - p) > TXT_MAX_FIELD)
+                return NULL;
+        }
+        if (col == last)
+            break;
+        /* s: the field's end; then blanks (skipped by num_field as by next_field) and the
+         * delimiter */
+        if (*s != d) {
+            if (d == ' ') {
+                if (!is_blank(*s))
+                    return NULL;
+            } else {
+                while (*s != d && is_blank(*s))
+                    s++;
+                if (*s != d)
+                    return NULL;
+            }
+        }
+        p = s + 1;
+        if ((unsigned char)*p <= ' ') { /* blanks before the next field (or no field) */
+            if (d == ' ')
+                while (is_blank(*p))
+                    p++;
+            else
+                while (*p != d && is_blank(*p))
+                    p++;
+        }
+    }
+    /* s: the last field's end; then blanks and the line end */
+    if (*s != '\n') {
+        if (d == ' ')
+            while (is_blank(*s))
+                s++;
+        else
+            while (*s != d && is_blank(*s))
+                s++;
+        s += *s == '\r';
+        if (*s != '\n')
+            return NULL;
+    }
+    if ((size_t)(s - b) > TXT_MAX_LINE)
+        return NULL;
+    return s;
+}
+
+/* Data lines the fast way (fast_line), as many as follow: each is counted, checked and stored
+ * as data_row does it. CS_OK when the next line is for the general way, or an error code. */
+static int fast_rows(txt *c)
+{
+    const char d = c->delim;
+    const unsigned char *role = c->role;
+    const size_t last = c->ncols - 1, max = c->o->max_samples;
+    const char *buf = c->buf;
+    size_t pos = c->pos;
+    long line = c->line;
+    int rc = CS_OK;
+    /* below this row count row_room has nothing to do: n < cap, and n < max when max is set */
+    size_t stop = max && max < c->cap ? max : c->cap;
+    for (;;) {
+        double v[R_COUNT];
+        const char *nl = fast_line(buf + pos, d, role, last, v);
+        if (!nl)
+            break;
+        line++;
+        pos = (size_t)(nl - buf) + 1;
+        if (c->n >= stop) {
+            c->line = line; /* grow() names it */
+            if ((rc = row_room(c, line)))
+                break;
+            stop = max && max < c->cap ? max : c->cap;
+        }
+        if ((rc = row_take(c, v, line)))
+            break;
+    }
+    c->line = line;
+    c->pos = c->scan = pos;
+    return rc;
 }
 
 /* The first non-comment line: delimiter, header or not, column count. */
@@ -661,7 +812,11 @@ static int run(txt *c)
 {
     char *lb = NULL, *le = NULL;
     int r;
-    while ((r = next_line(c, &lb, &le)) == 1) {
+    for (;;) {
+        if (c->decided && !c->no_fast && (r = fast_rows(c)))
+            return r;
+        if ((r = next_line(c, &lb, &le)) != 1)
+            break;
         long line = c->line;
         if (line == 1) {
             if (le - lb >= 3 && memcmp(lb, "\xEF\xBB\xBF", 3) == 0)
@@ -692,6 +847,11 @@ static int run(txt *c)
             return r;
         if ((r = data_row(c, p, le, line)))
             return r;
+        /* a data row the fast way did not take (or the first one): when such rows are not rare
+         * (quoted fields, numbers of more than 19 digits), the fast way would only add a failed
+         * try to every row, and it is given up */
+        if (++c->slow_rows > 64 && c->slow_rows > c->n / 4)
+            c->no_fast = 1;
     }
     return r;
 }
@@ -720,7 +880,7 @@ int cs_io_text_load(const char *path, const cs_load_options *o, cs_loaded *out, 
     c.f = fopen(path, "rb");
     if (!c.f)
         return cs_error_set(err, CS_EIO, path, -1, -1, "cannot open: %s", strerror(errno));
-    c.buf = malloc(TXT_BUF_BYTES + 1);
+    c.buf = malloc(TXT_BUF_BYTES + TXT_PAD);
     int rc = c.buf ? run(&c) : io_text_fail(&c, CS_ENOMEM, -1, "out of memory for the read buffer");
     if (rc == CS_OK)
         rc = io_text_finish(&c);

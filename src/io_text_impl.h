@@ -36,6 +36,8 @@ typedef struct txt {
     size_t len, pos, scan; /* valid bytes, start of the next line, where to resume memchr */
     int eof;
     long line;             /* physical line number of the current line */
+    size_t slow_rows;      /* data rows read the general way (io_text.c, run) */
+    int no_fast;           /* 1: the fast way (fast_rows) is no longer tried */
 
     /* table shape */
     char delim;            /* 0 undecided; ' ' runs of blanks */
@@ -66,6 +68,7 @@ typedef struct txt {
     long prev_line;
     int dir;               /* spectrum axis direction: +1, -1, 0 unknown yet */
     double t_first, t_prev, step1, dmin, dmax;
+    double step1_tol;      /* TXT_STEP_TOL * step1 */
     long step1_line, dmin_line, dmax_line;
 } txt;
 

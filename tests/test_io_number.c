@@ -10,8 +10,9 @@
  * to a finite double (so the loader's old strtod path would have accepted it) with the same
  * bits; strings it does not decide go to that strtod path unchanged. The loader's own scanner,
  * io_decimal_scan (io_number_impl.h: digits eight at a time, then the same conversion), must
- * stop exactly where the number ends and decide exactly the same strings. The file under test
- * is compiled into this program, since its functions are internal to the library. */
+ * stop exactly where the number ends and decide exactly the same strings; so must its unbounded
+ * form io_decimal_scan_padded, which the loader runs on its zero-padded read buffer. The file
+ * under test is compiled into this program, since its functions are internal to the library. */
 #include "../src/io_number.c"
 
 #include <collshift/io.h>
@@ -324,13 +325,34 @@ END_TEST
 
 /* ---------------------------------------------------------------- the loader's scanner */
 
+/* io_decimal_scan_padded on the n bytes at s followed by eight zero bytes, in a block of
+ * exactly that size (under AddressSanitizer a read beyond it fails): it must end where
+ * io_decimal_scan(s, s + n) ends (*end, NULL for none), with the same bits (*a). */
+static void check_padded(const char *s, size_t n, const char *end, double a)
+{
+    char *blk = malloc(n + 8);
+    ck_assert_ptr_nonnull(blk);
+    memcpy(blk, s, n);
+    memset(blk + n, 0, 8);
+    double p = 0.0;
+    const char *pend = io_decimal_scan_padded(blk, &p);
+    long got = pend ? (long)(pend - blk) : -1, want = end ? (long)(end - s) : -1;
+    ck_assert_msg(got == want, "'%.*s': padded scan ends at %ld, bounded at %ld", (int)n, s, got,
+                  want);
+    ck_assert_msg(!end || bits_of(p) == bits_of(a), "'%.*s': padded %.17g != bounded %.17g",
+                  (int)n, s, p, a);
+    free(blk);
+}
+
 /* io_decimal_scan on [s, s + n) (n may run past the number into what follows it), checked
  * against cs_decimal_to_double on the number alone: the scan ends exactly at the end of a
- * number that cs_decimal_to_double decides, with the same bits, and nowhere else. */
+ * number that cs_decimal_to_double decides, with the same bits, and nowhere else. The padded
+ * scan is checked against it (check_padded). */
 static void check_scan(const char *s, size_t n, size_t numlen)
 {
     double a = 0.0, b = 0.0;
     const char *end = io_decimal_scan(s, s + n, &a);
+    check_padded(s, n, end, a);
     int dec = cs_decimal_to_double(s, s + numlen, &b);
     if (dec) {
         ck_assert_msg(end == s + numlen, "'%.*s' + '%.*s': scan ends at %td, expected %zu",
@@ -385,6 +407,21 @@ static const struct scan_case {
     {"1e400,", -1},   /* overflow: left to strtod */
     {"-0,", 2},
     {"1e-400,", -1},  /* beyond the table: left to strtod */
+    /* the eight-byte groups after the point: every count of digits in the last group, and bytes
+     * next to the digits that a group must not take for digits ('/' and ':' border '0'..'9';
+     * bytes >= 0x80, and >= 0xFA, which carry when 0x46 is added) */
+    {"0.1/2", 3},
+    {"0.1:2", 3},
+    {"0.1234567\xff" "1", 9},
+    {"0.12345678\xfa" "1", 10},
+    {"0.12345678\x80", 10},
+    {"0.123456789\xba", 11},
+    {"2.25\xc0", 4},
+    {"0.1234567812345678,", 18},
+    {"0.12345678123456789,", 19},
+    {"0.123456781234567891;", 20},
+    {"0.1234567812345678e3,", 20},
+    {"3.00000000\t", 10},
 };
 
 START_TEST(test_scan_cases)
@@ -397,6 +434,7 @@ START_TEST(test_scan_cases)
         long got = end ? (long)(end - s) : -1;
         ck_assert_msg(got == scan_cases[i].end, "'%s': scan ends at %ld, expected %ld", s, got,
                       scan_cases[i].end);
+        check_padded(s, n, end, v);
         if (end) {
             /* reference: C standard strtod on the scanned characters (common practice) */
             char tmp[64];

@@ -149,6 +149,42 @@ START_TEST(test_columns_by_name)
 }
 END_TEST
 
+/* Data rows after the first one are read straight from the read buffer when they are plain
+ * (io_text.c, fast_line); these rows test its edges, with the values as written in the text:
+ * blanks and tabs around fields, CRLF, unused columns (empty, or holding words), and comment and
+ * blank lines between rows while the first column is unused (they must stay comments and blank
+ * lines, not become rows). */
+START_TEST(test_rows_plain_and_not)
+{
+    static const struct {
+        const char *what, *text, *x_col, *y_col;
+    } cases[] = {
+        {"comments and blank lines, first column unused",
+         "name,x,y\na,1,10\nb,2,20\n#c,3,30\n\n  \t\n  # d,3,30\nd,4,40\n", "2", "3"},
+        {"blanks, unused middle column, CRLF",
+         "f n y\r\n1 x 10\r\n2\ty\t20 \r\n  3 z 30\t\r\n4 w 40", "1", "3"},
+        {"commas with blanks, empty unused field",
+         "f,n,y\r\n1, u ,10\r\n2 ,,20\r\n3,v, 30 \r\n4,w,40\n", "1", "3"},
+        {"tabs with blanks", "1\t 10\n 2 \t20\n\t3\t30 \n4\t40\n", "1", "2"},
+    };
+    static const double x[] = {1, 2, 4}, x4[] = {1, 2, 3, 4};
+    for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++) {
+        cs_load_options o;
+        cs_load_options_init(&o);
+        o.x_col = cases[k].x_col;
+        o.y_col = cases[k].y_col;
+        size_t n = k == 0 ? 3 : 4;
+        const double *want = k == 0 ? x : x4;
+        cs_loaded L;
+        const cs_spectrum *s = load_spectrum(cases[k].text, &o, n, &L);
+        for (size_t i = 0; i < n; i++)
+            ck_assert_msg(s->freq_hz[i] == want[i] && s->y[i] == 10 * want[i],
+                          "%s: row %zu is (%g, %g)", cases[k].what, i, s->freq_hz[i], s->y[i]);
+        cs_loaded_release(&L);
+    }
+}
+END_TEST
+
 START_TEST(test_columns_by_index)
 {
     cs_load_options o;
@@ -821,6 +857,15 @@ static const struct bad_case {
     {"empty field", "1,,3\n4,5,6\n7,8,9\n", CS_EFORMAT, 1, "column 2 is empty", NO_OPTIONS},
     {"only delimiters", ",,\n1,2,3\n", CS_EFORMAT, 1, "only empty fields", NO_OPTIONS},
     {"lone CR line endings", "1,2\r2,3\r3,4\r", CS_EFORMAT, 1, "carriage return", NO_OPTIONS},
+    /* after the first data row, as the loader's fast way meets them */
+    {"trailing delimiter, later row", "1,10\n2,20\n3,30,\n", CS_EFORMAT, 3,
+     "expected 2 columns, found 3", NO_OPTIONS},
+    {"one field, later row", "1,10\n2,20\n3\n4,40\n", CS_EFORMAT, 3, "expected 2 columns, found 1",
+     NO_OPTIONS},
+    {"two CRs at a later line end", "1,10\r\n2,20\r\r\n3,30\r\n", CS_EFORMAT, 2,
+     "carriage return", NO_OPTIONS},
+    {"CR inside a later row", "1 10\n2\r 20\n3 30\n", CS_EFORMAT, 2, "carriage return",
+     NO_OPTIONS},
     {"UTF-16", "\xFF\xFE" "1,2\n", CS_EFORMAT, 1, "UTF-16", NO_OPTIONS},
 
     /* too little data */
@@ -1147,6 +1192,7 @@ static Suite *io_text_suite(void)
     tc = tcase_create("columns");
     tcase_add_test(tc, test_columns_by_name);
     tcase_add_test(tc, test_columns_by_index);
+    tcase_add_test(tc, test_rows_plain_and_not);
     tcase_add_test(tc, test_header_quoted_and_unused);
     suite_add_tcase(s, tc);
 
