@@ -32,6 +32,7 @@
 #include <check.h>
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_linalg.h>
+#include <gsl/gsl_min.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 #include <gsl/gsl_sf_gamma.h>
@@ -1094,6 +1095,85 @@ START_TEST(test_noise_units)
 }
 END_TEST
 
+/* A misfit whose Gauss-Newton steps alternate in sign: a Gaussian line (FWHM 20 MHz) on a floor,
+ * noise-free, fitted with a Lorentzian and a constant under sigma_i = 0.1 sqrt(y_i). The
+ * neglected term sum r_i d2r_i of the large residuals makes each step overshoot by a nearly
+ * constant factor, and the steps still to come sum to d / (1 - r) with r < 0 (the geometric
+ * series, as for shrinking steps of one sign). Reference: the same chi2 minimised independently,
+ * the centre 0 by symmetry (the data and the grid are symmetric about 0), area and floor by the
+ * 2 x 2 weighted normal equations for each width, the width by GSL's Brent minimiser on the
+ * Lorentzian written out here. The fit must land within 1e-3 standard errors of that minimum, and
+ * in at most 13 evaluations (17 when alternating steps are not extrapolated, measured while
+ * adding the extrapolation). */
+enum { ALT_N = 401 };
+static double alt_x[ALT_N], alt_y[ALT_N], alt_s[ALT_N];
+
+/* chi2 of the best area and floor for Lorentzian FWHM f centred at 0; *area, *floor set. */
+static double alt_chi2(double f, double *area, double *floor)
+{
+    double s11 = 0, s12 = 0, s22 = 0, t1 = 0, t2 = 0;
+    for (int i = 0; i < ALT_N; i++) {
+        double h = 0.5 * f, l = h / PI / (alt_x[i] * alt_x[i] + h * h), w = 1.0 / (alt_s[i] * alt_s[i]);
+        s11 += w * l * l;
+        s12 += w * l;
+        s22 += w;
+        t1 += w * l * alt_y[i];
+        t2 += w * alt_y[i];
+    }
+    double det = s11 * s22 - s12 * s12, a = (t1 * s22 - t2 * s12) / det, b = (s11 * t2 - s12 * t1) / det, c = 0;
+    for (int i = 0; i < ALT_N; i++) {
+        double h = 0.5 * f, r = (a * h / PI / (alt_x[i] * alt_x[i] + h * h) + b - alt_y[i]) / alt_s[i];
+        c += r * r;
+    }
+    *area = a;
+    *floor = b;
+    return c;
+}
+
+static double alt_chi2_f(double f, void *unused)
+{
+    (void)unused;
+    double a, b;
+    return alt_chi2(f, &a, &b);
+}
+
+START_TEST(test_alternating_convergence)
+{
+    for (int i = 0; i < ALT_N; i++) {
+        alt_x[i] = -200e6 + 1e6 * i;
+        double u = alt_x[i] / 20e6;
+        alt_y[i] = 1.0 + 10.0 * exp(-4.0 * log(2.0) * u * u);
+        alt_s[i] = 0.1 * sqrt(alt_y[i]);
+    }
+    cs_model *m = tu_model("lorentz", CS_BASELINE_CONST, CS_MODEL_SUM);
+    cs_fit_parameters par = params(CS_WEIGHT_SIGMA, 1);
+    cs_fit_result *r = NULL;
+    cs_error err;
+    ck_assert_int_eq(cs_fit_run(NULL, m, alt_x, alt_y, alt_s, NULL, ALT_N, &par, &r, &err), CS_OK);
+    ck_assert_int_eq(r->status, CS_FIT_CONVERGED);
+    /* the reference minimum */
+    gsl_function F = {alt_chi2_f, NULL};
+    gsl_min_fminimizer *b = gsl_min_fminimizer_alloc(gsl_min_fminimizer_brent);
+    ck_assert_int_eq(gsl_min_fminimizer_set(b, &F, 13e6, 5e6, 40e6), GSL_SUCCESS);
+    for (int it = 0; it < 200; it++) {
+        gsl_min_fminimizer_iterate(b);
+        if (gsl_min_test_interval(gsl_min_fminimizer_x_lower(b), gsl_min_fminimizer_x_upper(b), 0.0, 1e-10) ==
+            GSL_SUCCESS)
+            break;
+    }
+    double f = gsl_min_fminimizer_x_minimum(b), area, floor;
+    gsl_min_fminimizer_free(b);
+    alt_chi2(f, &area, &floor);
+    const double ref[4] = {0.0, f, area, floor};
+    for (int j = 0; j < 4; j++)
+        ck_assert_msg(fabs(r->value[j] - ref[j]) <= 1e-3 * r->err[j], "param %d: %.12g, reference %.12g (error %g)", j,
+                      r->value[j], ref[j], r->err[j]);
+    ck_assert_msg(r->nfev <= 13, "%zu evaluations (%zu iterations)", r->nfev, r->niter);
+    cs_fit_result_free(r);
+    cs_model_free(m);
+}
+END_TEST
+
 START_TEST(test_linear_convergence)
 {
     enum { N = 2048, FITS = 150 };
@@ -1170,6 +1250,7 @@ static Suite *fit_suite(void)
     tc = tcase_create("failures");
     tcase_add_test(tc, test_not_converged);
     tcase_add_test(tc, test_linear_convergence);
+    tcase_add_test(tc, test_alternating_convergence);
     tcase_add_test(tc, test_noise_units);
     tcase_add_test(tc, test_singular);
     tcase_add_test(tc, test_model_nan);
