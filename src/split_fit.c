@@ -260,13 +260,15 @@ static int gatefit_era(const split_ctx *cx, const cs_record *rec, cs_split_era e
  * as the noise unit; the blocks more than BAND_NSIGMA noise units above the floor span the
  * excess, which is widened (see BAND_WIDTHS) and clipped to the axis. The whole axis when the
  * spectrum is short, nothing stands out, the floor is not positive or the band would cover more
- * than half the axis. Returns CS_OK or CS_ENOMEM. */
-static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb)
+ * than half the axis. *floor: that median of block means (the noise floor), NaN when the
+ * spectrum is too short for it. Returns CS_OK or CS_ENOMEM. */
+static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb, double *floor)
 {
     const cs_spectrum *s = gs->psd;
     const size_t n = s->n;
     *i0 = 0;
     *nb = n;
+    *floor = NAN;
     if (n < BAND_MIN_AXIS)
         return CS_OK;
     size_t w = n / 1024;
@@ -288,6 +290,7 @@ static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb)
        (gsl_stats_select: quickselect, reorders tmp) */
     memcpy(tmp, bm, nblk * sizeof *tmp);
     double floor_med = gsl_stats_select(tmp, 1, nblk, nblk / 2);
+    *floor = floor_med;
     for (size_t b = 0; b < nblk; b++)
         tmp[b] = fabs(bm[b] - floor_med);
     double unit = 1.4826 * gsl_stats_select(tmp, 1, nblk, nblk / 2);
@@ -317,7 +320,8 @@ static int whole_band(const cs_gated_spectrum *gs, size_t *i0, size_t *nb)
 }
 
 static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
-                          const double *fy, size_t n, int blocks, double hint_hz, cs_split_fit *f, cs_error *err);
+                          const double *fy, size_t n, int blocks, double hint_hz, double floor_hint, cs_split_fit *f,
+                          cs_error *err);
 
 /* Fit `model` plus the floor to a gated PSD in two passes (split.h), errors scaled for the
  * correlation of neighbouring bins (cs_gate_block_variance). band: fit only the bins that hold
@@ -330,7 +334,8 @@ static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const cha
 {
     const cs_spectrum *s = gs->psd;
     size_t i0 = 0, n = s->n;
-    if (band && whole_band(gs, &i0, &n) != CS_OK)
+    double floor_hint = NAN;
+    if (band && whole_band(gs, &i0, &n, &floor_hint) != CS_OK)
         return cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory");
     const double *fx = s->freq_hz + i0, *fy = s->y + i0;   /* the bins fitted */
     f->fmin_hz = fx[0];
@@ -343,7 +348,7 @@ static int plain_fit(const split_ctx *cx, const cs_gated_spectrum *gs, const cha
     f->energy_scale = gs->dt_s * gs->sum_w2;
     f->first = gs->first;
     f->m = gs->m;
-    return plain_fit_bins(cx, gs, model, fx, fy, n, band, hint_hz, f, err);
+    return plain_fit_bins(cx, gs, model, fx, fy, n, band, hint_hz, floor_hint, f, err);
 }
 
 /* Means of blocks of K bins of fx, fy (n bins; the last n % K dropped) into bx, by; the number of
@@ -385,8 +390,8 @@ static double narrowest_width(const cs_model *m, const cs_fit_result *r)
  * factor is gK): the equal-weight pass, then weighted passes. Leaves the fit in f->pfit (or
  * NULL) and returns the last cs_fit_run code; e2 holds its message. */
 static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spectrum *gs, cs_split_fit *f,
-                        const double *x, const double *y, size_t nx, size_t K, double gK, double *pv, double *sig,
-                        double *base, cs_error *e2)
+                        const double *x, const double *y, size_t nx, size_t K, double gK, double floor_hint,
+                        double *pv, double *sig, double *base, cs_error *e2)
 {
     cs_fit_parameters par = cs_fit_default_parameters();
     /* the block is the mean of K samples df apart: the two nodes +-(width/2)/sqrt(3) match its
@@ -441,7 +446,10 @@ static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spe
             break;
         prev_floor = floor_mid;
         for (size_t i = 0; i < nx; i++) {
-            double F = base[i], S = fmax(sig[i] - base[i], 0.0);
+            /* a fitted floor that is not positive (the equal-weight pass, pulled by the lines'
+               residuals, can put it below 0) gives way to the median floor of the spectrum */
+            double F = base[i] > 0 || !(floor_hint > 0) ? base[i] : floor_hint;
+            double S = fmax(sig[i] - base[i], 0.0);
             double v = F > 0 ? F * F + 2.0 * F * S : sig[i] * sig[i];   /* no floor: exponential scatter */
             sig[i] = fmax(sqrt(v / kshots), 1e-6 * top);
         }
@@ -478,7 +486,8 @@ static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spe
  * out narrower than BLOCK_PER_FWHM blocks, or the fit does not converge, again with blocks short
  * enough, at most BLOCK_STEP times shorter per refit (single bins at the end). */
 static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, const char *model, const double *fx,
-                          const double *fy, size_t n, int blocks, double hint_hz, cs_split_fit *f, cs_error *err)
+                          const double *fy, size_t n, int blocks, double hint_hz, double floor_hint, cs_split_fit *f,
+                          cs_error *err)
 {
     cs_error e2;
     cs_error_clear(&e2);
@@ -528,7 +537,7 @@ static int plain_fit_bins(const split_ctx *cx, const cs_gated_spectrum *gs, cons
         f->block = K;
         f->fmax_hz = fx[nx * K - 1];   /* the last bin fitted */
         f->err_scale = sqrt(fmax(ginf / gK, 1.0));
-        rc = plain_passes(fw, bmod, gs, f, x, y, nx, K, gK, pv, sig, base, &e2);
+        rc = plain_passes(fw, bmod, gs, f, x, y, nx, K, gK, floor_hint, pv, sig, base, &e2);
         if ((rc != CS_OK && rc != CS_ENOCONV) || K == 1 || Kset)
             break;
         double wmin = f->pfit ? narrowest_width(f->pmodel, f->pfit) : NAN;
