@@ -446,9 +446,12 @@ static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spe
             break;
         prev_floor = floor_mid;
         for (size_t i = 0; i < nx; i++) {
-            /* a fitted floor that is not positive (the equal-weight pass, pulled by the lines'
-               residuals, can put it below 0) gives way to the median floor of the spectrum */
-            double F = base[i] > 0 || !(floor_hint > 0) ? base[i] : floor_hint;
+            /* the first weights take the median floor of the spectrum (whole_band's block
+               means) when there is one: the equal-weight pass's floor is pulled by the lines'
+               residuals, on the seed-8 records to twice the final floor or below 0 (then every
+               bin would count as the model's pure exponential scatter); later passes, and a
+               fitted floor that is not positive, likewise */
+            double F = (pass > 0 && base[i] > 0) || !(floor_hint > 0) ? base[i] : floor_hint;
             double S = fmax(sig[i] - base[i], 0.0);
             double v = F > 0 ? F * F + 2.0 * F * S : sig[i] * sig[i];   /* no floor: exponential scatter */
             sig[i] = fmax(sqrt(v / kshots), 1e-6 * top);
