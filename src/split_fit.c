@@ -449,8 +449,8 @@ static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spe
             /* the first weights take the median floor of the spectrum (whole_band's block
                means) when there is one: the equal-weight pass's floor is pulled by the lines'
                residuals, on the seed-8 records to twice the final floor or below 0 (then every
-               bin would count as the model's pure exponential scatter); later passes, and a
-               fitted floor that is not positive, likewise */
+               bin would count as the model's pure exponential scatter); later passes take the
+               fitted floor, or the median one where the fitted floor is not positive */
             double F = (pass > 0 && base[i] > 0) || !(floor_hint > 0) ? base[i] : floor_hint;
             double S = fmax(sig[i] - base[i], 0.0);
             double v = F > 0 ? F * F + 2.0 * F * S : sig[i] * sig[i];   /* no floor: exponential scatter */
