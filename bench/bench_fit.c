@@ -185,11 +185,20 @@ static void report_floor(int reps, double evals_generic, double evals_guess)
     const double *p = res->value; /* voigt center, fwhm_g, fwhm_l, area first */
     double te = time_eval(0, m, p, x, y, J, reps), tv = time_eval(1, m, p, x, y, J, reps);
     double tw = time_eval(2, m, p, x, y, J, reps);
+    /* (null for a start that did not run) */
+    char eg[32] = "null", eu[32] = "null", fg[32] = "null", fu[32] = "null";
+    if (isfinite(evals_generic)) {
+        snprintf(eg, sizeof eg, "%.0f", evals_generic);
+        snprintf(fg, sizeof fg, "%.3f", 1e3 * te * evals_generic);
+    }
+    if (isfinite(evals_guess)) {
+        snprintf(eu, sizeof eu, "%.0f", evals_guess);
+        snprintf(fu, sizeof fu, "%.3f", 1e3 * te * evals_guess);
+    }
     printf("{\"bench\":\"fit_floor\",\"points\":%d,\"eval_jac_us\":%.2f,\"eval_us\":%.2f,\"faddeeva_us\":%.2f,"
-           "\"median_evaluations_generic\":%.0f,\"median_evaluations_guess\":%.0f,\"floor_generic_ms\":%.3f,"
-           "\"floor_guess_ms\":%.3f}\n",
-           NPTS, 1e6 * te, 1e6 * tv, 1e6 * tw, evals_generic, evals_guess, 1e3 * te * evals_generic,
-           1e3 * te * evals_guess);
+           "\"median_evaluations_generic\":%s,\"median_evaluations_guess\":%s,\"floor_generic_ms\":%s,"
+           "\"floor_guess_ms\":%s}\n",
+           NPTS, 1e6 * te, 1e6 * tv, 1e6 * tw, eg, eu, fg, fu);
     cs_fit_result_free(res);
     cs_model_free(m);
     free(J);
