@@ -44,7 +44,8 @@
  * the solver copies that matrix, adds mu D^2 and calls the same gsl_linalg_mcholesky_decomp and
  * _solve, with -J^T f = -g (the trust region's gradient, which GSL computes right after each
  * Jacobian) whenever the right-hand side is the current residual vector; the scaling takes the
- * column norms from the diagonal of J^T J. The Gauss-Newton step of the convergence test below
+ * column norms from the diagonal of J^T J (both pieces in lsq_normal.c, shared with the
+ * gate-aware fits). The Gauss-Newton step of the convergence test below
  * uses the same J^T J and g. Where the callback's matrix is not at hand (another workspace's J)
  * both fall back to the BLAS calls. The trust region itself, its step acceptance and its damping
  * (Nielsen's update) are GSL's unchanged. What remains of BLAS (J dx and the norms of f inside
@@ -126,6 +127,7 @@
 #include <collshift/fit.h>
 
 #include "fit_impl.h"
+#include "lsq_normal_impl.h"
 
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
@@ -153,11 +155,13 @@
 
 /* ---------------------------------------------------------------- GSL workspace */
 
-static const gsl_multifit_nlinear_solver fit_solver_chol; /* below: the linear solver */
-static const gsl_multifit_nlinear_scale fit_scale_more;    /* and the scaling */
-
-/* The workspace whose solve runs in this thread (GSL's scaling callback is given J alone). */
-static _Thread_local const cs_fit_workspace *solving;
+/* J^T J of the workspace's Jacobian callback for the solver and scaling of lsq_normal.c, when
+ * it was formed for this very J. */
+static const double *fit_normal(const void *owner, const gsl_matrix *J)
+{
+    const cs_fit_workspace *w = owner;
+    return w->jtj_of == J->data && w->nfree == J->size2 ? w->jtj : NULL;
+}
 
 /* GSL's workspace is tied to (n, p, method): keep it while they stay the same. */
 static int ensure_gsl(cs_fit_workspace *w, size_t n, size_t k, int accel)
@@ -168,8 +172,8 @@ static int ensure_gsl(cs_fit_workspace *w, size_t n, size_t k, int accel)
         gsl_multifit_nlinear_free(w->gw);
     gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
     fp.trs = accel ? gsl_multifit_nlinear_trs_lmaccel : gsl_multifit_nlinear_trs_lm;
-    fp.scale = &fit_scale_more;
-    fp.solver = &fit_solver_chol;
+    fp.scale = &cs_lsq_scale_more;
+    fp.solver = &cs_lsq_solver_mcholesky;
     w->gw = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, n, k);
     if (!w->gw)
         return CS_ENOMEM;
@@ -581,187 +585,6 @@ static int cb_df(const gsl_vector *th, void *params, gsl_matrix *J)
     return GSL_SUCCESS;
 }
 
-/* ---------------------------------------------------------------- linear solver for GSL */
-
-/* The trust region's linear solver: (J^T J + mu D^2) v = -J^T f by GSL's modified Cholesky
- * decomposition (gsl_linalg_mcholesky_*), as gsl_multifit_nlinear_solver_mcholesky solves it,
- * but with J^T J taken from the Jacobian callback, which forms it while it writes J (one pass
- * over the data instead of a second one through gsl_blas_dsyrk), and with -J^T f taken from the
- * trust region's gradient g = J^T f whenever f is the current residual vector (GSL computes g
- * right after each Jacobian; only the geodesic acceleration's right-hand side needs a product).
- * Without the callback's matrix (another workspace's J) it forms J^T J itself. */
-typedef struct fit_chol {
-    gsl_matrix *jtj;    /* J^T J (lower triangle) */
-    gsl_matrix *work;   /* J^T J + mu D^2, then its factor */
-    gsl_vector *rhs;
-    gsl_vector *work3;  /* 3k: condition estimate */
-    gsl_permutation *perm;
-    double mu;          /* the damping of the factor in work; -1: none */
-} fit_chol;
-
-static void chol_free(void *vs)
-{
-    fit_chol *s = vs;
-    if (!s)
-        return;
-    gsl_matrix_free(s->jtj);
-    gsl_matrix_free(s->work);
-    gsl_vector_free(s->rhs);
-    gsl_vector_free(s->work3);
-    gsl_permutation_free(s->perm);
-    free(s);
-}
-
-static void *chol_alloc(const size_t n, const size_t k)
-{
-    (void)n;
-    fit_chol *s = calloc(1, sizeof *s);
-    if (!s)
-        return NULL;
-    s->jtj = gsl_matrix_alloc(k, k);
-    s->work = gsl_matrix_alloc(k, k);
-    s->rhs = gsl_vector_alloc(k);
-    s->work3 = gsl_vector_alloc(3 * k);
-    s->perm = gsl_permutation_alloc(k);
-    s->mu = -1.0;
-    if (!s->jtj || !s->work || !s->rhs || !s->work3 || !s->perm) {
-        chol_free(s);
-        return NULL;
-    }
-    return s;
-}
-
-static int chol_init(const void *vts, void *vs)
-{
-    const gsl_multifit_nlinear_trust_state *ts = vts;
-    fit_chol *s = vs;
-    const cs_fit_workspace *w = ts->fdf->f == cb_f ? ts->fdf->params : NULL;
-    const size_t k = s->jtj->size1;
-    if (w && w->jtj_of == ts->J->data && w->nfree == k) {
-        for (size_t r = 0; r < k; r++)
-            for (size_t c = 0; c <= r; c++)
-                gsl_matrix_set(s->jtj, r, c, w->jtj[r * k + c]);
-    } else {
-        gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, ts->J, 0.0, s->jtj);
-    }
-    s->mu = -1.0;
-    return GSL_SUCCESS;
-}
-
-/* Factor the lower triangle of jtj + mu D^2 into s->work. */
-static int chol_factor(fit_chol *s, double mu, const gsl_vector *diag)
-{
-    const size_t k = s->jtj->size1;
-    for (size_t r = 0; r < k; r++)
-        for (size_t c = 0; c <= r; c++)
-            gsl_matrix_set(s->work, r, c, gsl_matrix_get(s->jtj, r, c));
-    if (mu != 0.0)
-        for (size_t r = 0; r < k; r++) {
-            double d = gsl_vector_get(diag, r);
-            *gsl_matrix_ptr(s->work, r, r) += mu * d * d;
-        }
-    int st = gsl_linalg_mcholesky_decomp(s->work, s->perm, NULL);
-    s->mu = st == GSL_SUCCESS ? mu : -1.0;
-    return st;
-}
-
-static int chol_presolve(const double mu, const void *vts, void *vs)
-{
-    const gsl_multifit_nlinear_trust_state *ts = vts;
-    return chol_factor(vs, mu, ts->diag);
-}
-
-static int chol_solve(const gsl_vector *f, gsl_vector *x, const void *vts, void *vs)
-{
-    const gsl_multifit_nlinear_trust_state *ts = vts;
-    fit_chol *s = vs;
-    if (f == ts->f) {
-        /* -J^T f = -g, exactly as the product would give it */
-        for (size_t j = 0; j < x->size; j++)
-            gsl_vector_set(s->rhs, j, -gsl_vector_get(ts->g, j));
-    } else {
-        gsl_blas_dgemv(CblasTrans, -1.0, ts->J, f, 0.0, s->rhs);
-    }
-    return gsl_linalg_mcholesky_solve(s->work, s->perm, s->rhs, x);
-}
-
-static int chol_rcond(double *rcond, void *vs)
-{
-    fit_chol *s = vs;
-    if (s->mu != 0.0) {
-        int st = chol_factor(s, 0.0, NULL);
-        if (st != GSL_SUCCESS)
-            return st;
-    }
-    double rc;
-    int st = gsl_linalg_mcholesky_rcond(s->work, s->perm, &rc, s->work3);
-    if (st == GSL_SUCCESS)
-        *rcond = sqrt(rc);
-    return st;
-}
-
-/* More's scaling (J. J. More, "The Levenberg-Marquardt algorithm: implementation and theory",
- * Numerical Analysis, Springer LNM 630, 105-116 (1978)): D_jj = the largest norm
- * column j of the Jacobian has had in this solve (1 for a zero column), as
- * gsl_multifit_nlinear_scale_more keeps it, with the norms summed in one pass over the rows
- * instead of one strided gsl_blas_dnrm2 per column (the Jacobian's entries are of order one, so
- * the plain sum of squares neither overflows nor underflows; a column where it did gets
- * gsl_blas_dnrm2). */
-static int scale_update(const gsl_matrix *J, gsl_vector *diag)
-{
-    enum { MAXK = 64 };
-    const size_t n = J->size1, k = J->size2;
-    const cs_fit_workspace *w = solving;
-    double ss[MAXK];
-    if (w && w->jtj_of == J->data && w->nfree == k) {
-        /* the Jacobian callback has just formed J^T J for this J: its diagonal */
-        for (size_t j = 0; j < k; j++) {
-            double nr = sqrt(w->jtj[j * k + j]);
-            double *d = gsl_vector_ptr(diag, j);
-            *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
-        }
-        return GSL_SUCCESS;
-    }
-    if (k > MAXK) {
-        for (size_t j = 0; j < k; j++) {
-            gsl_vector_const_view c = gsl_matrix_const_column(J, j);
-            double nr = gsl_blas_dnrm2(&c.vector);
-            double *d = gsl_vector_ptr(diag, j);
-            *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
-        }
-        return GSL_SUCCESS;
-    }
-    for (size_t j = 0; j < k; j++)
-        ss[j] = 0.0;
-    for (size_t i = 0; i < n; i++) {
-        const double *row = J->data + i * J->tda;
-        for (size_t j = 0; j < k; j++)
-            ss[j] += row[j] * row[j];
-    }
-    for (size_t j = 0; j < k; j++) {
-        double nr = sqrt(ss[j]);
-        if (!(ss[j] >= 1e-280 && ss[j] <= 1e280)) {
-            gsl_vector_const_view c = gsl_matrix_const_column(J, j);
-            nr = gsl_blas_dnrm2(&c.vector);
-        }
-        double *d = gsl_vector_ptr(diag, j);
-        *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
-    }
-    return GSL_SUCCESS;
-}
-
-static int scale_init(const gsl_matrix *J, gsl_vector *diag)
-{
-    gsl_vector_set_zero(diag);
-    return scale_update(J, diag);
-}
-
-static const gsl_multifit_nlinear_scale fit_scale_more = {"collshift-more", scale_init, scale_update};
-
-static const gsl_multifit_nlinear_solver fit_solver_chol = {"collshift-mcholesky", chol_alloc, chol_init,
-                                                            chol_presolve, chol_solve, chol_rcond,
-                                                            chol_free};
-
 /* ---------------------------------------------------------------- the solver */
 
 /* |dt_j| <= tol (1 + |t_j|) for all j, where a step below 8 ulps of the parameter itself counts
@@ -917,10 +740,10 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
     w->fdf.params = w;
     w->last_nan = 0;
     gsl_vector_view th0 = gsl_vector_view_array(w->theta, k);
-    solving = w;
+    cs_lsq_normal_bind(fit_normal, w);
     int s = gsl_multifit_nlinear_winit(&th0.vector, NULL, &w->fdf, w->gw);
     if (s != GSL_SUCCESS || w->last_nan) {
-        solving = NULL;
+        cs_lsq_normal_bind(NULL, NULL);
         o->status = CS_FIT_MODEL_NAN;
         o->stop = CS_FIT_STOP_MODEL_NAN;
         o->nfev = w->nfev;
@@ -996,7 +819,7 @@ int cs_fit_impl_solve(cs_fit_workspace *w, const cs_fit_parameters *par, double 
             break;
         }
     }
-    solving = NULL;
+    cs_lsq_normal_bind(NULL, NULL);
     const gsl_vector *x = gsl_multifit_nlinear_position(gw);
     for (size_t j = 0; j < k; j++)
         w->pwork[j] = gsl_vector_get(x, j);

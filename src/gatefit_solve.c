@@ -44,9 +44,9 @@
  * covariance's pivoted QR (below). A point where the model is not finite (e^{u1}
  * overflowing) gets huge residuals, so the trust region rejects it. J^T J is formed once per
  * Jacobian, by the Jacobian callback right after it wrote J (one pass over the rows, each entry
- * summed in gsl_blas_dsyrk's order); the one-component solver (gf_solver_chol, GSL's modified
- * Cholesky as in gsl_multifit_nlinear_solver_cholesky), the More scaling (gf_scale_more: column
- * norms from its diagonal) and the Gauss-Newton test below take it from there, and -J^T f is
+ * summed in gsl_blas_dsyrk's order); the one-component solver (GSL's modified Cholesky) and the
+ * More scaling (column norms from its diagonal), both in lsq_normal.c and shared with the
+ * spectrum fits, and the Gauss-Newton test below take it from there, and -J^T f is
  * the trust region's own gradient g, instead of a gsl_blas_dsyrk per iteration, a gsl_blas_dgemv
  * per trial step and a strided gsl_blas_dnrm2 per column (GSL lets a caller supply the solver
  * and the scaling; the pattern of src/fit_solve.c). Convergence: an accepted
@@ -76,6 +76,7 @@
  * and the phase phi = arg(c_r) - 2 pi (f - lo) s_r on those and u0,
  * dphi = (cr dci - ci dcr)/A^2 - 2 pi s_r df). First-order, as any least-squares covariance. */
 #include "gatefit_impl.h"
+#include "lsq_normal_impl.h"
 
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
@@ -406,159 +407,14 @@ static int cb_df(const gsl_vector *x, void *params, gsl_matrix *J)
 
 /* ---------------------------------------------------------------- linear solver and scaling */
 
-/* The trust region's linear solver for one component: (J^T J + mu D^2) v = -J^T f by GSL's
- * modified Cholesky decomposition (gsl_linalg_mcholesky_*), as gsl_multifit_nlinear_solver_cholesky
- * solves it, but with J^T J taken from the Jacobian callback (cb_df forms it right after writing
- * J, in one pass over the rows, instead of a gsl_blas_dsyrk at every iteration) and -J^T f taken
- * from the trust region's gradient g = J^T f whenever f is the current residual vector (GSL
- * computes g right after each Jacobian; the solve at every trial step otherwise repeats that
- * product). Without the callback's matrix it forms J^T J itself. The pattern of src/fit_solve.c. */
-typedef struct gf_chol {
-    gsl_matrix *jtj;    /* J^T J (lower triangle) */
-    gsl_matrix *work;   /* J^T J + mu D^2, then its factor */
-    gsl_vector *rhs;
-    gsl_vector *work3;  /* 3k: condition estimate */
-    gsl_permutation *perm;
-    double mu;          /* the damping of the factor in work; -1: none */
-} gf_chol;
-
-static void gf_chol_free(void *vs)
+/* J^T J of the fit's Jacobian callback for the solver and the More scaling of lsq_normal.c (the
+ * one-component solver there is GSL's modified Cholesky, as gsl_multifit_nlinear_solver_mcholesky
+ * solves it), when it was formed for this very J. */
+static const double *gf_normal(const void *owner, const gsl_matrix *J)
 {
-    gf_chol *s = vs;
-    if (!s)
-        return;
-    gsl_matrix_free(s->jtj);
-    gsl_matrix_free(s->work);
-    gsl_vector_free(s->rhs);
-    gsl_vector_free(s->work3);
-    gsl_permutation_free(s->perm);
-    free(s);
+    const gf_fit *F = owner;
+    return F->jtj_of == J->data && F->np == J->size2 ? F->jtj : NULL;
 }
-
-static void *gf_chol_alloc(const size_t n, const size_t k)
-{
-    (void)n;
-    gf_chol *s = calloc(1, sizeof *s);
-    if (!s)
-        return NULL;
-    s->jtj = gsl_matrix_alloc(k, k);
-    s->work = gsl_matrix_alloc(k, k);
-    s->rhs = gsl_vector_alloc(k);
-    s->work3 = gsl_vector_alloc(3 * k);
-    s->perm = gsl_permutation_alloc(k);
-    s->mu = -1.0;
-    if (!s->jtj || !s->work || !s->rhs || !s->work3 || !s->perm) {
-        gf_chol_free(s);
-        return NULL;
-    }
-    return s;
-}
-
-static int gf_chol_init(const void *vts, void *vs)
-{
-    const gsl_multifit_nlinear_trust_state *ts = vts;
-    gf_chol *s = vs;
-    const gf_fit *F = ts->fdf->df == cb_df ? ts->fdf->params : NULL;
-    const size_t k = s->jtj->size1;
-    if (F && F->jtj_of == ts->J->data && F->np == k) {
-        for (size_t r = 0; r < k; r++)
-            for (size_t c = 0; c <= r; c++)
-                gsl_matrix_set(s->jtj, r, c, F->jtj[r * k + c]);
-    } else {
-        gsl_blas_dsyrk(CblasLower, CblasTrans, 1.0, ts->J, 0.0, s->jtj);
-    }
-    s->mu = -1.0;
-    return GSL_SUCCESS;
-}
-
-/* Factor the lower triangle of jtj + mu D^2 into s->work. */
-static int gf_chol_factor(gf_chol *s, double mu, const gsl_vector *diag)
-{
-    const size_t k = s->jtj->size1;
-    for (size_t r = 0; r < k; r++)
-        for (size_t c = 0; c <= r; c++)
-            gsl_matrix_set(s->work, r, c, gsl_matrix_get(s->jtj, r, c));
-    if (mu != 0.0)
-        for (size_t r = 0; r < k; r++) {
-            double d = gsl_vector_get(diag, r);
-            *gsl_matrix_ptr(s->work, r, r) += mu * d * d;
-        }
-    int st = gsl_linalg_mcholesky_decomp(s->work, s->perm, NULL);
-    s->mu = st == GSL_SUCCESS ? mu : -1.0;
-    return st;
-}
-
-static int gf_chol_presolve(const double mu, const void *vts, void *vs)
-{
-    const gsl_multifit_nlinear_trust_state *ts = vts;
-    return gf_chol_factor(vs, mu, ts->diag);
-}
-
-static int gf_chol_solve(const gsl_vector *f, gsl_vector *x, const void *vts, void *vs)
-{
-    const gsl_multifit_nlinear_trust_state *ts = vts;
-    gf_chol *s = vs;
-    if (f == ts->f) {
-        for (size_t j = 0; j < x->size; j++)   /* -J^T f = -g, the same product */
-            gsl_vector_set(s->rhs, j, -gsl_vector_get(ts->g, j));
-    } else {
-        gsl_blas_dgemv(CblasTrans, -1.0, ts->J, f, 0.0, s->rhs);
-    }
-    return gsl_linalg_mcholesky_solve(s->work, s->perm, s->rhs, x);
-}
-
-static int gf_chol_rcond(double *rcond, void *vs)
-{
-    gf_chol *s = vs;
-    if (s->mu != 0.0) {
-        int st = gf_chol_factor(s, 0.0, NULL);
-        if (st != GSL_SUCCESS)
-            return st;
-    }
-    double rc;
-    int st = gsl_linalg_mcholesky_rcond(s->work, s->perm, &rc, s->work3);
-    if (st == GSL_SUCCESS)
-        *rcond = sqrt(rc);
-    return st;
-}
-
-static const gsl_multifit_nlinear_solver gf_solver_chol = {"collshift-gatefit-cholesky", gf_chol_alloc,
-                                                           gf_chol_init, gf_chol_presolve, gf_chol_solve,
-                                                           gf_chol_rcond, gf_chol_free};
-
-/* The fit whose solve runs in this thread (GSL gives the scaling callback J alone). */
-static _Thread_local const gf_fit *gf_solving;
-
-/* More's scaling as gsl_multifit_nlinear_scale_more keeps it (J. J. More, "The Levenberg-Marquardt
- * algorithm: implementation and theory", Numerical Analysis, Springer LNM 630, 105-116 (1978)):
- * D_jj = the largest norm column j of J has had in this solve, 1 for a zero column; the norms
- * from the diagonal of the callback's J^T J (GSL takes one strided gsl_blas_dnrm2 per column).
- * A sum of squares out of [1e-280, 1e280] (possible under- or overflow) gets gsl_blas_dnrm2. */
-static int gf_scale_update(const gsl_matrix *J, gsl_vector *diag)
-{
-    const gf_fit *F = gf_solving;
-    const size_t k = J->size2;
-    const int have = F && F->jtj_of == J->data && F->np == k;
-    for (size_t j = 0; j < k; j++) {
-        double ss = have ? F->jtj[j * k + j] : NAN, nr = sqrt(ss);
-        if (!(ss >= 1e-280 && ss <= 1e280)) {
-            gsl_vector_const_view c = gsl_matrix_const_column(J, j);
-            nr = gsl_blas_dnrm2(&c.vector);
-        }
-        double *d = gsl_vector_ptr(diag, j);
-        *d = fmax(*d, nr == 0.0 ? 1.0 : nr);
-    }
-    return GSL_SUCCESS;
-}
-
-static int gf_scale_init(const gsl_matrix *J, gsl_vector *diag)
-{
-    gsl_vector_set_zero(diag);
-    return gf_scale_update(J, diag);
-}
-
-static const gsl_multifit_nlinear_scale gf_scale_more = {"collshift-gatefit-more", gf_scale_init,
-                                                         gf_scale_update};
 
 /* |dx_j| <= xtol (1 + |x_j|) for every j. */
 static int small_step(const gsl_vector *x, const gsl_vector *dx, double xtol)
@@ -657,13 +513,13 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
 {
     gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
     fp.trs = gsl_multifit_nlinear_trs_lm;
-    fp.scale = &gf_scale_more;
+    fp.scale = &cs_lsq_scale_more;
     /* one component: Cholesky (its J is well conditioned in u); sums of components: QR (they
        can be nearly degenerate, e.g. two decays for one line, where the normal equations
        square the condition number) */
-    fp.solver = F->P.ncomp == 1 ? &gf_solver_chol : gsl_multifit_nlinear_solver_qr;
+    fp.solver = F->P.ncomp == 1 ? &cs_lsq_solver_mcholesky : gsl_multifit_nlinear_solver_qr;
     F->jtj_of = NULL;
-    gf_solving = F;
+    cs_lsq_normal_bind(gf_normal, F);
     gsl_multifit_nlinear_workspace *gw =
         gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, F->nres, F->np);
     gsl_matrix *Jg = gsl_matrix_alloc(F->nres, F->np), *Cg = gsl_matrix_alloc(F->np, F->np);
@@ -767,7 +623,7 @@ int cs_gatefit_impl_solve(gf_fit *F, const cs_gatefit_options *o, double *u, cs_
     }
     r->niter = iter;
 done:
-    gf_solving = NULL;
+    cs_lsq_normal_bind(NULL, NULL);
     F->jtj_of = NULL;
     gsl_multifit_linear_free(lw);
     gsl_vector_free(ug);
