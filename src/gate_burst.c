@@ -463,6 +463,20 @@ static void robust_stats(const double *y, size_t first, size_t count, double *tm
     *sig = 1.4826 * median_inplace(tmp, count);
 }
 
+/* Sum of (x_j - mean)^2 over count > 0 values, the mean into *mean. */
+static double centred_sumsq(const double *x, size_t count, double *mean)
+{
+    double m = 0.0;
+    for (size_t j = 0; j < count; j++)
+        m += x[j];
+    m /= (double)count;
+    double c0 = 0.0;
+    for (size_t j = 0; j < count; j++)
+        c0 += (x[j] - m) * (x[j] - m);
+    *mean = m;
+    return c0;
+}
+
 /* The standard deviation the smoothing (half-width h) leaves of the noise in the raw intensity
  * y[first .. first + count) is sqrt(var * tau * sum h_k^2): this returns var * tau (0 when the
  * region is constant), with var the sample variance and tau
@@ -474,13 +488,7 @@ static double raw_noise_var_tau(const double *y, size_t first, size_t count, dou
                                 double *tau_out)
 {
     const double *x = y + first;
-    double mean = 0.0;
-    for (size_t j = 0; j < count; j++)
-        mean += x[j];
-    mean /= (double)count;
-    double c0 = 0.0;
-    for (size_t j = 0; j < count; j++)
-        c0 += (x[j] - mean) * (x[j] - mean);
+    double mean, c0 = centred_sumsq(x, count, &mean);
     *tau_out = tau_min;
     if (!(c0 > 0))
         return 0.0;
@@ -542,14 +550,7 @@ static double quiet_var_tau(const cs_envelope *env)
         double tau;
         return raw_noise_var_tau(env->intensity, env->quiet_first, count, tau_min, &tau);
     }
-    const double *x = env->intensity + env->quiet_first;
-    double mean = 0.0;
-    for (size_t j = 0; j < count; j++)
-        mean += x[j];
-    mean /= (double)count;
-    double c0 = 0.0;
-    for (size_t j = 0; j < count; j++)
-        c0 += (x[j] - mean) * (x[j] - mean);
+    double mean, c0 = centred_sumsq(env->intensity + env->quiet_first, count, &mean);
     if (!(c0 > 0))
         return 0.0;
     return c0 / (double)(count - 1) * env->noise_tau;

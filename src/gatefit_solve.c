@@ -120,6 +120,17 @@ int cs_gatefit_impl_theta(const gf_fit *F, const double *u, gf_theta *th)
     return ok;
 }
 
+/* A point where the model is not finite: huge residuals (the trust region rejects it) and a zero
+ * Jacobian; returns 0. */
+static int gf_penalty(const gf_fit *F, gsl_vector *res, gsl_matrix *J)
+{
+    if (res)
+        gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
+    if (J)
+        gsl_matrix_set_zero(J);
+    return 0;
+}
+
 /* cs_gatefit_impl_evaluate for the commonest fit, one decay (the tail's, over the longest gates),
  * with the same operations in the same order as the general loop below (the same values, up to
  * the sign of a residual that is exactly 0): the recurrence of gf_basis_next kept in registers,
@@ -203,13 +214,7 @@ static int evaluate_decay1(gf_fit *F, const gf_theta *th, int ok, gsl_vector *re
     }
     if (bad != 0.0 || isnan(bad))
         ok = 0;
-    if (!ok) {
-        if (res)
-            gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
-        if (J)
-            gsl_matrix_set_zero(J);
-    }
-    return ok;
+    return ok ? 1 : gf_penalty(F, res, J);
 }
 
 /* Residuals (res, nres values; may be NULL) and Jacobian (J, nres x np; may be NULL) at u.
@@ -298,13 +303,7 @@ int cs_gatefit_impl_evaluate(gf_fit *F, const double *u, gsl_vector *res, gsl_ma
                 rd[i * rstride] = rr;
         }
     }
-    if (!ok) {
-        if (res)
-            gsl_vector_set_all(res, GF_PENALTY / sqrt((double)F->nres));
-        if (J)
-            gsl_matrix_set_zero(J);
-    }
-    return ok;
+    return ok ? 1 : gf_penalty(F, res, J);
 }
 
 static int cb_f(const gsl_vector *x, void *params, gsl_vector *f)
