@@ -66,6 +66,15 @@ static void make_spectrum(gsl_rng *r, double *x, double *y, double *s)
     }
 }
 
+/* One spectrum from its own generator with this seed. */
+static void seeded_spectrum(unsigned long seed, double *x, double *y, double *s)
+{
+    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(r, seed);
+    make_spectrum(r, x, y, s);
+    gsl_rng_free(r);
+}
+
 static void *run(void *arg)
 {
     job *j = arg;
@@ -166,10 +175,7 @@ static void report_floor(int reps, double evals_generic, double evals_guess)
 {
     double x[NPTS], y[NPTS], s[NPTS];
     double *J = malloc((size_t)NPTS * 16 * sizeof *J);
-    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(r, 7);
-    make_spectrum(r, x, y, s);
-    gsl_rng_free(r);
+    seeded_spectrum(7, x, y, s);
     cs_error err;
     cs_model *m = cs_model_alloc("voigt+lorentz", CS_BASELINE_LINEAR, CS_MODEL_SUM, &err);
     cs_fit_parameters par = cs_fit_default_parameters();
@@ -226,10 +232,7 @@ int main(int argc, char **argv)
     }
     /* a generic start: the automatic guess on one spectrum, reused for all */
     double x[NPTS], y[NPTS], s[NPTS], start[16];
-    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(r, 99);
-    make_spectrum(r, x, y, s);
-    gsl_rng_free(r);
+    seeded_spectrum(99, x, y, s);
     cs_error err;
     cs_model *m = cs_model_alloc("voigt+lorentz", CS_BASELINE_LINEAR, CS_MODEL_SUM, &err);
     if (!m || cs_model_guess(m, x, y, s, NPTS, &err) != CS_OK) {
