@@ -358,12 +358,14 @@ static cs_spectrum *spectrum_alloc_unset(size_t n, int with_sigma)
 }
 
 /* Make *out fit nfq frequencies (reusing arrays when possible). *fresh_axis = 1 when the axis
- * must be written. On failure a new object is freed and *out restored to NULL. */
+ * must be written, *new_psd = 1 when the PSD's arrays are new (not zeroed: the caller writes them,
+ * or zeroes them when it fails). On failure a new object is freed and *out restored to NULL. */
 static int prepare_result(cs_gated_spectrum **out, size_t nfq, int with_sigma, int keep_complex,
-                          int *fresh_axis, int *created, cs_error *err)
+                          int *fresh_axis, int *new_psd, int *created, cs_error *err)
 {
     cs_gated_spectrum *s = *out;
     *created = 0;
+    *new_psd = 0;
     if (!s) {
         s = calloc(1, sizeof *s);
         if (!s)
@@ -383,6 +385,7 @@ static int prepare_result(cs_gated_spectrum **out, size_t nfq, int with_sigma, i
         }
         cs_spectrum_free(s->psd);
         s->psd = p;
+        *new_psd = 1;
         snprintf(p->y_name, sizeof p->y_name, "psd");
     }
     if (keep_complex) {
@@ -518,8 +521,8 @@ int cs_gate_spectrum(cs_gate_workspace *ws, const cs_record *rec, const cs_gate 
         return err ? err->code : CS_EINVAL;
     int cplx = rec->is_complex != 0;
     size_t nfq = cs_gate_nfreq(N, cplx);
-    int fresh, created;
-    rc = prepare_result(out, nfq, 0, o->keep_complex, &fresh, &created, err);
+    int fresh, new_psd, created;
+    rc = prepare_result(out, nfq, 0, o->keep_complex, &fresh, &new_psd, &created, err);
     if (rc != CS_OK)
         return rc;
     cs_gated_spectrum *s = *out;
@@ -531,9 +534,11 @@ int cs_gate_spectrum(cs_gate_workspace *ws, const cs_record *rec, const cs_gate 
         s->average = CS_GATE_AVERAGE_POWER;
         if (set_meta(s, rec) != CS_OK)
             rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for metadata");
-    } else if (fresh) {   /* a failed transform leaves new arrays zeroed, as allocated before */
-        memset(s->psd->freq_hz, 0, nfq * sizeof(double));
-        memset(s->psd->y, 0, nfq * sizeof(double));
+    } else {   /* a failed transform leaves new arrays zeroed, as allocated before */
+        if (fresh)
+            memset(s->psd->freq_hz, 0, nfq * sizeof(double));
+        if (new_psd)
+            memset(s->psd->y, 0, nfq * sizeof(double));
     }
     if (rc != CS_OK && created) {
         cs_gated_spectrum_free(s);
@@ -594,8 +599,8 @@ int cs_gate_spectrum_shots(cs_gate_workspace *ws, cs_record *const *recs, size_t
     int cplx = r0->is_complex != 0;
     size_t nfq = cs_gate_nfreq(N, cplx);
     int with_sigma = nrec >= 2 && o->average == CS_GATE_AVERAGE_POWER;
-    int fresh, created;
-    rc = prepare_result(out, nfq, with_sigma, 1, &fresh, &created, err);
+    int fresh, new_psd, created;
+    rc = prepare_result(out, nfq, with_sigma, 1, &fresh, &new_psd, &created, err);
     if (rc != CS_OK)
         return rc;
     cs_gated_spectrum *s = *out;
@@ -639,8 +644,14 @@ int cs_gate_spectrum_shots(cs_gate_workspace *ws, cs_record *const *recs, size_t
         fill_header(s, r0, g, o, first, m, N, we, nrec, fresh);
         if (set_meta(s, r0) != CS_OK)
             rc = cs_error_set(err, CS_ENOMEM, NULL, -1, -1, "out of memory for metadata");
-    } else if (fresh) {   /* a new axis left zeroed, as allocated before */
-        memset(s->psd->freq_hz, 0, nfq * sizeof(double));
+    } else {   /* new arrays left zeroed, as allocated before */
+        if (fresh)
+            memset(s->psd->freq_hz, 0, nfq * sizeof(double));
+        if (new_psd) {
+            memset(s->psd->y, 0, nfq * sizeof(double));
+            if (s->psd->sigma)
+                memset(s->psd->sigma, 0, nfq * sizeof(double));
+        }
     }
     if (!o->keep_complex && rc == CS_OK) {
         fftw_free(s->X);

@@ -407,6 +407,46 @@ START_TEST(test_remove_mean)
 }
 END_TEST
 
+/* A failed call on a reused spectrum whose PSD has to be made anew (a power average of shots
+ * has a sigma array, one shot has none) leaves the new arrays zeroed, as freshly allocated ones
+ * were (not uninitialised; common practice for a documented "unchanged or zero" result). */
+START_TEST(test_spectrum_failure_zeroes)
+{
+    cs_record *shots[2] = {noise_record(100, 1, 1e-6, 1.0, 5), noise_record(100, 1, 1e-6, 1.0, 6)};
+    cs_gate_workspace *ws = cs_gate_alloc();
+    cs_gate g;
+    ck_assert_int_eq(cs_gate_init(&g, "g", 0, 80e-6, NULL, 1, NULL), CS_OK);
+    cs_gate_options o;
+    cs_gate_options_default(&o);
+    cs_gated_spectrum *s = NULL;
+    ck_assert_int_eq(cs_gate_spectrum_shots(ws, shots, 2, &g, &o, &s, NULL), CS_OK);
+    ck_assert_ptr_nonnull(s->psd->sigma);
+    const size_t n = s->psd->n;
+    /* scribble on the heap blocks the new arrays may come from */
+    double *junk[8];
+    for (int k = 0; k < 8; k++) {
+        junk[k] = malloc(n * sizeof *junk[k]);
+        ck_assert_ptr_nonnull(junk[k]);
+        for (size_t i = 0; i < n; i++)
+            junk[k][i] = 12345.0;
+    }
+    for (int k = 0; k < 8; k++)
+        free(junk[k]);
+    shots[0]->data[2 * 40] = NAN;
+    cs_error e;
+    ck_assert_int_eq(cs_gate_spectrum(ws, shots[0], &g, &o, &s, &e), CS_EDATA);
+    ck_assert_ptr_nonnull(s);
+    ck_assert_ptr_null(s->psd->sigma);
+    ck_assert_uint_eq(s->psd->n, n);
+    for (size_t i = 0; i < n; i++)
+        ck_assert_msg(s->psd->y[i] == 0.0, "psd[%zu] = %g after a failed call", i, s->psd->y[i]);
+    cs_gated_spectrum_free(s);
+    cs_gate_free(ws);
+    cs_record_free(shots[0]);
+    cs_record_free(shots[1]);
+}
+END_TEST
+
 /* Errors: a gate beyond the record, a NaN sample, padding 0; a failed call leaves *out NULL. */
 START_TEST(test_spectrum_errors)
 {
@@ -1051,6 +1091,7 @@ static Suite *gate_suite(void)
     suite_add_tcase(s, tc);
     tc = tcase_create("api");
     tcase_add_test(tc, test_spectrum_errors);
+    tcase_add_test(tc, test_spectrum_failure_zeroes);
     tcase_add_test(tc, test_reuse);
     suite_add_tcase(s, tc);
     tc = tcase_create("fftw");
