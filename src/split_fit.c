@@ -444,7 +444,8 @@ static int plain_passes(cs_fit_workspace *fw, cs_model *bmod, const cs_gated_spe
             top = fmax(top, fabs(sig[i]));
         if (pass > 0 && fabs(floor_mid - prev_floor) <= 0.01 * fabs(prev_floor))
             break;
-        prev_floor = floor_mid;
+        /* the floor these weights are built from (the first pass's: the median floor) */
+        prev_floor = pass == 0 && floor_hint > 0 ? floor_hint : floor_mid;
         for (size_t i = 0; i < nx; i++) {
             /* the first weights take the median floor of the spectrum (whole_band's block
                means) when there is one: the equal-weight pass's floor is pulled by the lines'
