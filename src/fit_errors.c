@@ -152,6 +152,9 @@ int cs_fit_impl_resample(cs_fit_workspace *w, const cs_fit_parameters *par, cons
             cs_fit_impl_weights(w);
             return rc;
         }
+        /* keep a final Gauss-Newton (or extrapolated) step only if it did not raise the cost on
+           this simulated data set, as the fit itself does */
+        cs_fit_impl_check_polish(w, w->prep, &o);
         if (o.status != CS_FIT_CONVERGED)
             continue;
         cnt++;
