@@ -45,7 +45,13 @@
  * 0.3 % in tests/test_split.c) at a fraction of the cost (the whole-record estimate went from
  * ~1.2 G to ~0.1 G instructions per 2^17-sample record); where it does not (burst and tail
  * interfere in one spectrum), the block means show the misfit that the exponential scatter of
- * single bins hides, chi2/dof grows and so do the errors. --whole-block 1 fits every bin. */
+ * single bins hides, chi2/dof grows and so do the errors. --whole-block 1 fits every bin.
+ *
+ * The weights of the reweighted passes come from the model of the pass before (floor and line,
+ * plain_passes), except the first weighted pass's floor: that is the band search's median floor,
+ * because the equal-weight pass's floor is pulled by the lines' residuals (to twice the final
+ * floor, or below 0, on the synthetic records of bench/compare), and a floor below 0 used to make
+ * every bin count as the model's pure exponential scatter, which let a narrow component collapse. */
 #include "split_impl.h"
 
 #include <collshift/profile.h>
